@@ -1,0 +1,188 @@
+"""The ``nullfit`` command.  Parsing and printing only: every result comes from the library.
+
+Exit codes: 0 success; 2 bad input or usage (one line on stderr, never a traceback).
+Heavy libraries are imported inside the sub-command handlers so ``nullfit --help`` is instant.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from pathlib import Path
+
+EXIT_BAD_INPUT = 2
+
+
+class UsageError(Exception):
+    """A problem with the command line or the files it names (exit 2, one line)."""
+
+
+# --------------------------------------------------------------------------- parser
+def _scan_options(p: argparse.ArgumentParser) -> None:
+    g = p.add_argument_group("reading the log")
+    g.add_argument("--time", metavar="COL", help="time column (default time_s or the manifest's)")
+    g.add_argument("--angle", metavar="COL", help="turntable angle column (default angle_deg)")
+    g.add_argument("--signal", metavar="COL", help="signal column (default fringe)")
+    g.add_argument("--angle-unit", choices=("deg", "rad"), default=None,
+                   help="unit of the angle column (default deg, or the manifest's)")
+    g.add_argument("--manifest", metavar="FILE", help="TOML manifest (default: SCAN's stem + .toml if present)")
+    g.add_argument("--strict", action="store_true",
+                   help="refuse NaN/inf readings instead of dropping and counting them")
+
+
+def _fit_options(p: argparse.ArgumentParser) -> None:
+    g = p.add_argument_group("fit")
+    g.add_argument("--harmonics", default="1,2", metavar="K,K",
+                   help="harmonics of the table angle to fit (default 1,2)")
+    g.add_argument("--drift", default="per-turn", metavar="MODEL",
+                   help="per-turn | poly:DEG | spline:TURNS | none (default per-turn)")
+    g.add_argument("--errors", default="turns", metavar="KIND",
+                   help="turns | hac | ols | blocks:N (default turns: scatter of per-turn coefficients)")
+
+
+def _limit_options(p: argparse.ArgumentParser) -> None:
+    g = p.add_argument_group("upper limits on the 2θ amplitude")
+    g.add_argument("--cl", type=float, default=0.95, metavar="LEVEL", help="confidence level (default 0.95)")
+    g.add_argument("--limits", default=None, metavar="METHODS",
+                   help="comma list of feldman-cousins,neyman,bayes,bootstrap (default: none for fit)")
+    g.add_argument("--seed", type=int, default=None, help="random seed for bootstrap/simulation (recorded)")
+
+
+def _expected_options(p: argparse.ArgumentParser) -> None:
+    g = p.add_argument_group("expected signal (classical wind hypothesis)")
+    g.add_argument("--arm-length", type=float, metavar="M", help="effective (folded) arm length in metres")
+    g.add_argument("--wavelength", type=float, metavar="M", help="wavelength in metres")
+    g.add_argument("--speed", type=float, metavar="M/S", help="assumed wind speed in m/s")
+    g.add_argument("--site", metavar="LAT,LON", help="site latitude,longitude in degrees (east positive)")
+    g.add_argument("--mark-azimuth", type=float, metavar="DEG",
+                   help="geographic azimuth of the table's reference mark (degrees, N through E)")
+    g.add_argument("--wind", default=None, metavar="PRESET",
+                   help="orbital | rotation | cmb | custom:RA,DEC[,SPEED] (needs a site); "
+                        "default: fixed in-plane wind of --speed")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(
+        prog="nullfit",
+        description="Second-harmonic (2θ) amplitude, upper limits and expected-vs-bound ratios "
+                    "from rotating-interferometer and resonator-pair scan logs.",
+        epilog="Exit status: 0 on success, 2 on bad input (one line on stderr).",
+    )
+    p.add_argument("--version", action="store_true", help="print the version and exit")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND")
+
+    d = sub.add_parser("demo", help="the whole job on the bundled (invented) demo data")
+    d.add_argument("--data", metavar="DIR", help="demo data folder (default: the bundled data_demo)")
+    d.add_argument("-o", "--out", metavar="DIR", default="nullfit-demo",
+                   help="output folder for figures and report (default ./nullfit-demo)")
+    d.add_argument("--force", action="store_true", help="overwrite an existing output folder's files")
+    d.add_argument("--seed", type=int, default=20261201, help="random seed (recorded)")
+    d.add_argument("--no-output", action="store_true", help="print the summary only; write no files")
+
+    i = sub.add_parser("info", help="read a scan log and print what it holds")
+    i.add_argument("scan", metavar="SCAN", help="CSV or Parquet log")
+    _scan_options(i)
+    i.add_argument("--json", action="store_true", help="print one JSON object")
+
+    f = sub.add_parser("fit", help="fit drift and harmonics; optional limits and expected signal")
+    f.add_argument("scan", metavar="SCAN", help="CSV or Parquet log")
+    _scan_options(f)
+    _fit_options(f)
+    _limit_options(f)
+    _expected_options(f)
+    f.add_argument("--json", action="store_true", help="print one JSON object on stdout")
+
+    c = sub.add_parser("compare", help="run table across many scans (expected vs bound)")
+    c.add_argument("runs", nargs="+", metavar="RUN", help="scan logs (manifests beside them)")
+    _fit_options(c)
+    _limit_options(c)
+    _expected_options(c)
+    out = c.add_mutually_exclusive_group()
+    out.add_argument("--json", action="store_true", help="print JSON")
+    out.add_argument("--csv", action="store_true", help="print CSV")
+
+    r = sub.add_parser("report", help="one self-contained HTML report for a scan")
+    r.add_argument("scan", metavar="SCAN", help="CSV or Parquet log")
+    _scan_options(r)
+    _fit_options(r)
+    _limit_options(r)
+    _expected_options(r)
+    r.add_argument("-o", "--output", metavar="FILE", default="report.html", help="output HTML file")
+    r.add_argument("--force", action="store_true", help="overwrite an existing output file")
+    return p
+
+
+# --------------------------------------------------------------------------- helpers
+def _read(args):
+    from .logfile import read_scan
+
+    return read_scan(args.scan, time=args.time, angle=args.angle, signal=args.signal,
+                     angle_unit=args.angle_unit, manifest=args.manifest,
+                     nonfinite="raise" if args.strict else "drop")
+
+
+def _print_json(obj) -> None:
+    from .summary import jsonable
+
+    print(json.dumps(jsonable(obj), indent=2, allow_nan=False))
+
+
+# --------------------------------------------------------------------------- commands
+def cmd_info(args) -> int:
+    scan = _read(args)
+    if args.json:
+        _print_json({"source": scan.source, "n_samples": scan.n_samples, "n_turns": scan.n_turns,
+                     "n_complete_turns": scan.n_complete_turns, "dropped_rows": scan.dropped_rows,
+                     "dropped": dict(scan.dropped), "signal_unit": scan.signal_unit,
+                     "epoch_utc": scan.epoch_iso, "marks": scan.marks})
+    else:
+        print(scan.describe().as_text())
+    return 0
+
+
+def cmd_demo(args) -> int:
+    from .demo import run_demo
+
+    return run_demo(data=args.data, out=None if args.no_output else args.out, force=args.force, seed=args.seed)
+
+
+COMMANDS = {"info": cmd_info, "demo": cmd_demo}
+
+
+def main(argv=None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if args.version:
+        from . import __version__
+
+        print(f"nullfit {__version__}")
+        return 0
+    if not args.command:
+        parser.print_help()
+        return 0
+    handler = COMMANDS.get(args.command)
+    if handler is None:
+        print(f"nullfit: the '{args.command}' command is not available in this version", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    try:
+        return handler(args)
+    except (UsageError, FileExistsError, FileNotFoundError, IsADirectoryError, PermissionError) as err:
+        print(f"nullfit: {_one_line(err)}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except ValueError as err:  # ScanError is a ValueError; so are bad option values
+        print(f"nullfit: {_one_line(err)}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except BrokenPipeError:  # pragma: no cover - e.g. `nullfit fit ... | head`
+        return 0
+
+
+def _one_line(err: BaseException) -> str:
+    if isinstance(err, OSError) and err.filename is not None and err.strerror:
+        return f"{err.filename}: {err.strerror}"
+    text = str(err).strip() or type(err).__name__
+    return " ".join(text.split())
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())
