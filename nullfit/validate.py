@@ -2,148 +2,354 @@
 
 Order of the checks (each names file, row and column where it applies):
 
-1. lengths agree, at least two rows;
-2. non-finite readings: dropped and counted with a `ScanWarning` (``nonfinite="drop"``), or
-   refused (``nonfinite="raise"``);
-3. times strictly increasing (a duplicate or a step back names the row);
-4. angle unit plausibility (degrees that look like radians, or the reverse);
-5. turn numbering, at least one complete turn;
+1. lengths agree, at least one row, numeric values;
+2. non-finite readings (NaN, ±inf, empty cells): dropped and counted with a `ScanWarning`
+   (``nonfinite="drop"``), or refused (``nonfinite="raise"``);
+3. time: an epoch split (Unix seconds > 1e8 s become an integer-second epoch plus relative
+   seconds, via int64 nanoseconds), times strictly increasing (a duplicate or a step back names
+   the row), and relative times within ±1e8 s (about three years) of the epoch;
+4. angles: not absurdly large, and plausible for the declared unit (degrees that look like
+   radians, or the reverse);
+5. turn numbering (:func:`nullfit.scan.number_turns`, with the times, so that gaps in a
+   modulo-360° log are bridged), at least one complete turn;
 6. a signal that is not constant;
-7. angle coverage able to separate cos 2θ from sin 2θ.
+7. angle coverage (over the complete turns) able to separate cos 2θ from sin 2θ.
+
+Time helpers
+------------
+Times are carried as int64 nanoseconds whenever they are absolute, so that a 1.8e9 s Unix time
+never costs precision: :func:`decimal_seconds_to_ns` converts decimal text exactly,
+:func:`float_seconds_to_ns` reads a float as its shortest decimal representation (the number a
+person wrote), and :func:`split_epoch` returns the whole Unix second at or before the first
+reading plus float relative seconds computed from the integer nanoseconds.  Relative seconds
+below 2**53 ns (about 104 days) are then exact to the nanosecond.
 """
 
 from __future__ import annotations
 
 import math
 import warnings
+from decimal import ROUND_HALF_EVEN, Decimal, InvalidOperation
 from typing import Any, Mapping
 
 import numpy as np
 
 from .conventions import check_angle_unit
-from .scan import TWO_PI, Manifest, ScanError, ScanWarning, number_turns, where
+from .scan import REVERSAL_HYSTERESIS_DEG, TWO_PI, Manifest, ScanError, ScanWarning, number_turns, where
 
+NS_PER_S = 1_000_000_000
 #: Relative times larger than this are taken as Unix seconds (1e8 s ≈ 3 years).
 UNIX_THRESHOLD_S = 1e8
+#: The largest Unix time that fits int64 nanoseconds (2262-04-11), rounded down.
+UNIX_MAX_S = 9.2e9
+#: Relative times (seconds from the epoch) must stay within this (about three years).
+MAX_RELATIVE_S = 1e8
+#: Angles beyond a billion turns are not a turntable angle (and would lose float precision).
+MAX_ABS_TURNS = 1e9
+#: Smallest eigenvalue of the normalised (cos 2θ, sin 2θ) Gram matrix below which the two cannot
+#: be separated (uniform coverage gives 0.5).
+MIN_COVERAGE = 1e-3
+SIGNAL_UNITS = ("fringe", "fractional")
+NONFINITE_REASON = "missing, NaN or infinite value"
 
 
+# ---------------------------------------------------------------------------------- time helpers
+def decimal_seconds_to_ns(tokens) -> tuple[np.ndarray, np.ndarray]:
+    """Convert decimal strings of seconds exactly to int64 nanoseconds.
+
+    Plain decimals (``"1800000000.123456789"``, ``"-2.5"``) are converted with integer arithmetic;
+    other spellings (exponents) go through :class:`decimal.Decimal`.  Digits beyond the
+    nanosecond are rounded (half up on the tenth digit).  Returns ``(ns, ok)``; ``ok`` is false
+    where a token is not a finite number of seconds below ``UNIX_MAX_S`` in magnitude.
+    """
+    tok = np.char.strip(np.asarray(tokens, dtype=str))
+    n = tok.size
+    ns = np.zeros(n, np.int64)
+    ok = np.zeros(n, bool)
+    if n == 0:
+        return ns, ok
+    neg = np.char.startswith(tok, "-")
+    body = np.where(neg | np.char.startswith(tok, "+"), np.char.lstrip(np.char.lstrip(tok, "-"), "+"), tok)
+    part = np.char.partition(body, ".")
+    ip, dot, fp = part[..., 0], part[..., 1], part[..., 2]
+    simple = ((np.char.isdigit(ip) | (ip == "")) & (np.char.isdigit(fp) | (fp == ""))
+              & (np.char.str_len(ip) + np.char.str_len(fp) > 0) & (np.char.str_len(ip) <= 10)
+              & (np.char.str_len(body) == np.char.str_len(tok) - (neg | np.char.startswith(tok, "+"))))
+    if simple.any():
+        ipv = np.where(ip == "", "0", ip)[simple].astype(np.int64)
+        good = ipv < int(UNIX_MAX_S)
+        f10 = np.char.ljust(fp[simple].astype("U10"), 10, "0").astype(np.int64)
+        v = np.where(good, ipv, 0) * NS_PER_S + (f10 + 5) // 10
+        ns[simple] = np.where(good, np.where(neg[simple], -v, v), 0)
+        ok[simple] = good
+    for i in np.flatnonzero(~simple):  # rare spellings: exponents, long integers
+        try:
+            d = Decimal(str(tok[i]))
+            if d.is_finite() and abs(d) < Decimal(int(UNIX_MAX_S)):
+                ns[i] = int((d * NS_PER_S).to_integral_value(rounding=ROUND_HALF_EVEN))
+                ok[i] = True
+        except (InvalidOperation, ValueError):
+            pass
+    return ns, ok
+
+
+def float_seconds_to_ns(values) -> tuple[np.ndarray, np.ndarray]:
+    """Convert float seconds to int64 nanoseconds, reading each float as its shortest decimal
+    representation (so ``1800000000.1234567`` gives ``...123456700`` ns, as its text would).
+
+    Vectorised: the whole seconds are exact; for the fraction, the decimal with the fewest digits
+    (0 to 9) that lies strictly within half a unit in the last place of the float is chosen, which
+    is what the shortest round-trip representation (``repr``) gives.  Returns ``(ns, ok)`` as
+    :func:`decimal_seconds_to_ns`."""
+    v = np.asarray(values, dtype=float).ravel()
+    ok = np.isfinite(v) & (np.abs(v) < UNIX_MAX_S)
+    w = np.where(ok, v, 0.0)
+    sec = np.floor(w)
+    center = (w - sec) * NS_PER_S  # the exact fraction, in ns (relative error ~1e-16)
+    half = np.spacing(np.abs(w)) / 2 * NS_PER_S  # half an ulp, in ns
+    frac = np.rint(center)
+    done = np.zeros(v.size, bool)
+    for digits in range(10):
+        unit = 10.0 ** (9 - digits)
+        cand = np.rint(center / unit) * unit
+        hit = ~done & (np.abs(cand - center) < half)
+        frac[hit] = cand[hit]
+        done |= hit
+    ns = sec.astype(np.int64) * NS_PER_S + frac.astype(np.int64)
+    return np.where(ok, ns, 0), ok
+
+
+def utc_to_ns(value) -> int:
+    """Nanoseconds since 1970-01-01T00:00:00Z of an ISO-8601 string (naive means UTC), a
+    ``datetime`` or a ``pandas.Timestamp``.  Raises ``ValueError`` when it cannot be parsed or
+    lies outside 1677–2262."""
+    import pandas as pd
+
+    ts = pd.to_datetime(value, format="ISO8601") if isinstance(value, str) else pd.Timestamp(value)
+    if ts is pd.NaT:
+        raise ValueError(f"not a time: {value!r}")
+    ts = ts.tz_localize("UTC") if ts.tzinfo is None else ts.tz_convert("UTC")
+    return int(ts.as_unit("ns").value)
+
+
+def ns_to_iso(ns: int) -> str:
+    """ISO-8601 UTC text (``...Z``) of integer nanoseconds, with as many fractional digits as
+    needed (none, 3, 6 or 9)."""
+    import pandas as pd
+
+    ts = pd.Timestamp(int(ns), unit="ns", tz="UTC")
+    frac = int(ns) % NS_PER_S
+    spec = "seconds" if frac == 0 else "milliseconds" if frac % 1_000_000 == 0 else \
+        "microseconds" if frac % 1000 == 0 else "nanoseconds"
+    return ts.isoformat(timespec=spec).replace("+00:00", "Z")
+
+
+def split_epoch(ns: np.ndarray, valid: np.ndarray | None = None) -> tuple[int | None, np.ndarray]:
+    """``(epoch_unix, relative_seconds)`` from absolute int64 nanoseconds.
+
+    The epoch is the whole Unix second at or before the first valid reading; relative seconds
+    are computed from the integer nanoseconds (exact to 1 ns below 2**53 ns ≈ 104 days) and are
+    NaN where ``valid`` is false."""
+    ns = np.asarray(ns, dtype=np.int64)
+    valid = np.ones(ns.size, bool) if valid is None else np.asarray(valid, bool)
+    if not valid.any():
+        return None, np.full(ns.size, np.nan)
+    epoch = int(ns[valid][0]) // NS_PER_S
+    rel = (np.where(valid, ns, epoch * NS_PER_S) - epoch * NS_PER_S).astype(float) / NS_PER_S
+    rel[~valid] = np.nan
+    return epoch, rel
+
+
+# ---------------------------------------------------------------------------------- checks
 def coverage_condition(angle_rad: np.ndarray, k: int = 2) -> float:
     """Smallest eigenvalue of the normalised Gram matrix of (cos kθ, sin kθ) after removing
     the mean: 0.5 for uniform coverage, 0 when cos kθ and sin kθ cannot be separated."""
+    angle_rad = np.asarray(angle_rad, dtype=float)
+    if angle_rad.size == 0:
+        return 0.0
     c = np.cos(k * angle_rad)
     s = np.sin(k * angle_rad)
     c = c - c.mean()
     s = s - s.mean()
-    g = np.array([[c @ c, c @ s], [c @ s, s @ s]]) / max(angle_rad.size, 1)
+    g = np.array([[c @ c, c @ s], [c @ s, s @ s]]) / angle_rad.size
     return float(np.linalg.eigvalsh(g)[0])
+
+
+def _as_float(x, source, name) -> np.ndarray:
+    try:
+        return np.asarray(x, dtype=float).ravel()
+    except (TypeError, ValueError) as err:
+        raise ScanError(f"{where(source, None, name)}: values are not numeric ({err})".replace("\n", " ")) from None
 
 
 def build_scan(cls, time, angle, signal, *, angle_unit="deg", epoch_unix=None, signal_unit="fringe",
                source="<data>", rows=None, columns: Mapping[str, str] | None = None,
                aux: Mapping[str, Any] | None = None, meta: Manifest | None = None,
-               dropped: Mapping[str, int] | None = None, nonfinite: str = "drop"):
+               dropped: Mapping[str, int] | None = None, nonfinite: str = "drop",
+               angle_unit_origin: str | None = None,
+               hysteresis_deg: float = REVERSAL_HYSTERESIS_DEG):
+    """Run the checks of this module and build ``cls`` (a `Scan`).
+
+    ``angle_unit_origin`` says where the declared angle unit came from (e.g. ``"run.toml
+    [units] angle"``), for messages.  See :meth:`nullfit.scan.Scan.from_arrays` for the rest.
+    """
     check_angle_unit(angle_unit)
     if nonfinite not in ("drop", "raise"):
         raise ValueError(f"nonfinite must be 'drop' or 'raise', not {nonfinite!r}")
+    if signal_unit not in SIGNAL_UNITS:
+        raise ValueError(f"signal_unit must be 'fringe' or 'fractional', not {signal_unit!r}")
+    source = str(source)
     cols = {"time": "time", "angle": "angle", "signal": "signal"}
     cols.update(columns or {})
-    t = np.asarray(time, dtype=float).ravel()
-    a = np.asarray(angle, dtype=float).ravel()
-    y = np.asarray(signal, dtype=float).ravel()
+    t = _as_float(time, source, cols["time"])
+    a = _as_float(angle, source, cols["angle"])
+    y = _as_float(signal, source, cols["signal"])
     n = t.size
     if not (a.size == n and y.size == n):
         raise ScanError(f"{where(source)}: columns have different lengths ({n}, {a.size}, {y.size})")
     rows = np.arange(1, n + 1) if rows is None else np.asarray(rows, dtype=np.int64).ravel()
-    aux_arr = {k: np.asarray(v, dtype=float).ravel() for k, v in (aux or {}).items()}
+    if rows.size != n:
+        raise ValueError(f"rows has {rows.size} entries for {n} readings")
+    aux_arr = {str(k): _as_float(v, source, str(k)) for k, v in (aux or {}).items()}
+    for k, v in aux_arr.items():
+        if v.size != n:
+            raise ScanError(f"{where(source, None, k)}: auxiliary column has {v.size} values for {n} rows")
     if n == 0:
         raise ScanError(f"{where(source)}: the log has no data rows")
     drops: dict[str, int] = dict(dropped or {})
 
     # 2. non-finite readings
-    finite = np.isfinite(t) & np.isfinite(a) & np.isfinite(y)
-    for v in aux_arr.values():
+    named = [(cols["time"], t), (cols["angle"], a), (cols["signal"], y)] + list(aux_arr.items())
+    finite = np.ones(n, bool)
+    for _, v in named:
         finite &= np.isfinite(v)
     if not finite.all():
         bad = int(np.flatnonzero(~finite)[0])
-        name = next(cols[k] for k, v in (("time", t), ("angle", a), ("signal", y)) if not np.isfinite(v[bad])) \
-            if not (np.isfinite(t[bad]) and np.isfinite(a[bad]) and np.isfinite(y[bad])) else \
-            next(k for k, v in aux_arr.items() if not np.isfinite(v[bad]))
+        name = next(k for k, v in named if not np.isfinite(v[bad]))
         nbad = int((~finite).sum())
         if nonfinite == "raise":
-            raise ScanError(f"{where(source, int(rows[bad]), name)}: value is NaN or infinite "
+            raise ScanError(f"{where(source, int(rows[bad]), name)}: value is missing, NaN or infinite "
                             f"({nbad} such row(s); pass nonfinite='drop' to drop and count them)")
-        warnings.warn(f"{where(source, int(rows[bad]), name)}: dropped {nbad} row(s) with NaN or infinite values",
-                      ScanWarning, stacklevel=3)
-        drops["NaN or infinite value"] = drops.get("NaN or infinite value", 0) + nbad
+        warnings.warn(f"{where(source, int(rows[bad]), name)}: dropped {nbad} row(s) with missing, NaN or "
+                      "infinite values", ScanWarning, stacklevel=3)
+        drops[NONFINITE_REASON] = drops.get(NONFINITE_REASON, 0) + nbad
         t, a, y, rows = t[finite], a[finite], y[finite], rows[finite]
         aux_arr = {k: v[finite] for k, v in aux_arr.items()}
         n = t.size
         if n == 0:
-            raise ScanError(f"{where(source)}: no finite rows left")
+            raise ScanError(f"{where(source)}: no rows left after dropping {nbad} row(s) with missing, "
+                            "NaN or infinite values")
 
-    # 3. time: epoch split, strictly increasing
-    if epoch_unix is None and abs(t[0]) > UNIX_THRESHOLD_S:
-        epoch_unix = float(math.floor(t[0]))
-        t = t - epoch_unix
-    elif epoch_unix is not None:
-        epoch_unix = float(epoch_unix)
+    # 3. time: epoch split, strictly increasing, bounded
+    t, epoch_unix = _split_time(t, epoch_unix, source, rows, cols["time"])
     dt = np.diff(t)
     if dt.size and not (dt > 0).all():
         i = int(np.flatnonzero(~(dt > 0))[0]) + 1
         kind = "duplicate" if dt[i - 1] == 0 else "decreasing"
         raise ScanError(f"{where(source, int(rows[i]), cols['time'])}: {kind} time "
-                        f"({t[i]:.9g} s after {t[i - 1]:.9g} s); times must strictly increase")
+                        f"({t[i]:.9g} s after {t[i - 1]:.9g} s in row {int(rows[i - 1])}); times must strictly increase")
+    far = np.abs(t) > MAX_RELATIVE_S
+    if far.any():
+        i = int(np.flatnonzero(far)[0])
+        raise ScanError(f"{where(source, int(rows[i]), cols['time'])}: time {t[i]:.9g} s from the "
+                        f"{'epoch' if epoch_unix is not None else 'start'} is more than 1e8 s (3 years) "
+                        "away; mixed relative and Unix times, or not seconds?")
 
-    # 4. angle unit plausibility
-    a_rad = _angles_to_rad(a, angle_unit, source, rows, cols["angle"])
+    # 4. angles
+    too_big = np.abs(a) > MAX_ABS_TURNS * (360.0 if angle_unit == "deg" else TWO_PI)
+    if too_big.any():
+        i = int(np.flatnonzero(too_big)[0])
+        raise ScanError(f"{where(source, int(rows[i]), cols['angle'])}: angle {a[i]:.6g} {angle_unit} is more "
+                        "than a billion turns; not a turntable angle")
+    a_rad = _angles_to_rad(a, angle_unit, source, cols["angle"], angle_unit_origin, hysteresis_deg)
 
     # 5. turns
-    turns = number_turns(a_rad)
+    turns = number_turns(a_rad, time=t, hysteresis_deg=hysteresis_deg)
     if not turns.complete.any():
-        span = float(np.ptp(turns.unwrapped)) * 180 / math.pi
-        raise ScanError(f"{where(source, None, cols['angle'])}: less than one complete turn "
-                        f"(the table turned through {span:.1f}°)")
-    n_partial_rows = int((~turns.complete[turns.turn]).sum())
+        raise ScanError(_no_turn_message(a, a_rad, turns, angle_unit, source, cols["angle"]))
 
     # 6. constant signal
-    if np.ptp(y) == 0:
+    if float(y.max()) == float(y.min()):
         raise ScanError(f"{where(source, None, cols['signal'])}: the signal is constant ({y[0]:.9g}); "
                         "nothing to fit")
 
-    # 7. coverage: can cos 2θ and sin 2θ be separated?
-    cond = coverage_condition(turns.unwrapped, 2)
-    if cond < 1e-3:
-        nuniq = np.unique(np.round(np.mod(a_rad, TWO_PI), 6)).size
+    # 7. coverage over the complete turns: can cos 2θ and sin 2θ be separated?
+    use = turns.complete[turns.turn]
+    cond = coverage_condition(turns.unwrapped[use], 2)
+    if cond < MIN_COVERAGE:
+        az = np.mod(np.rad2deg(turns.unwrapped[use]), 360.0)
+        nuniq = np.unique(np.round(az, 2) % 360.0).size
         raise ScanError(f"{where(source, None, cols['angle'])}: angle coverage cannot separate cos 2θ from "
-                        f"sin 2θ ({nuniq} distinct azimuth(s); need at least 5 spread over the turn)")
+                        f"sin 2θ (readings at {nuniq} distinct azimuth(s) in the complete turns, "
+                        f"condition {cond:.2g} < {MIN_COVERAGE:g}); read at least 3 azimuths spread over half a turn")
 
-    if n_partial_rows:
-        pass  # partial turns are kept and flagged; the fit decides what to use (and counts it)
     return cls(time=t, angle=turns.unwrapped, signal=y, turn=turns.turn, turn_complete=turns.complete,
                turn_sense=turns.sense, rows=rows, epoch_unix=epoch_unix, signal_unit=signal_unit,
-               source=str(source), dropped=tuple(drops.items()), aux=aux_arr,
+               source=source, dropped=tuple(drops.items()), aux=aux_arr,
                meta=meta if meta is not None else Manifest(), n_reversals=turns.n_reversals)
 
 
-def _angles_to_rad(a: np.ndarray, unit: str, source, rows, col) -> np.ndarray:
-    """Convert to radians, refusing angles that look like the other unit."""
+def _split_time(t, epoch_unix, source, rows, col):
+    """Apply the epoch rules of :func:`build_scan` (step 3)."""
+    if epoch_unix is None:
+        if t[0] > UNIX_THRESHOLD_S:
+            over = ~(t < UNIX_MAX_S)
+            if over.any():
+                i = int(np.flatnonzero(over)[0])
+                raise ScanError(f"{where(source, int(rows[i]), col)}: time {t[i]:.9g} s is too large in magnitude "
+                                f"for Unix seconds (limit {UNIX_MAX_S:.2g} s, the year 2261); not a time in seconds")
+            ns, ok = float_seconds_to_ns(t)
+            epoch, rel = split_epoch(ns, ok)
+            return rel, epoch
+        if t[0] < -UNIX_THRESHOLD_S:
+            raise ScanError(f"{where(source, int(rows[0]), col)}: time {t[0]:.9g} s is neither relative seconds "
+                            "(|t| < 1e8) nor Unix seconds")
+        return t, None
+    e = float(epoch_unix)
+    if not (math.isfinite(e) and abs(e) < UNIX_MAX_S):
+        raise ValueError(f"epoch_unix must be Unix seconds before the year 2262, not {epoch_unix!r}")
+    whole = math.floor(e)
+    if e != whole:  # keep the epoch a whole second; the fraction moves into the times
+        t = t + (e - whole)
+    return t, int(whole)
+
+
+def _no_turn_message(a, a_rad, turns, unit, source, col) -> str:
+    span = float(np.ptp(turns.unwrapped)) * 180 / math.pi
+    msg = (f"{where(source, None, col)}: less than one complete turn (the table turned through {span:.4g}°"
+           f"{f' in {turns.n_reversals + 1} segments between direction changes' if turns.n_reversals else ''}")
+    if span >= 360:
+        msg += "; a complete turn needs at least 3 readings"
+    msg += ")"
+    if unit == "deg" and float(np.ptp(a)) >= TWO_PI and number_turns(a).complete.any():
+        msg += "; as radians they would make complete turns: set angle_unit='rad' if they are radians"
+    return msg
+
+
+def _angles_to_rad(a: np.ndarray, unit: str, source, col, origin, hysteresis_deg) -> np.ndarray:
+    """Convert to radians, refusing angles that clearly are in the other unit."""
+    declared = origin or f"angle_unit={unit!r}"
     lo, hi = float(a.min()), float(a.max())
-    steps = np.abs(np.diff(a))
-    moving = steps[steps > 0]
+    span = hi - lo
     if unit == "deg":
-        # a full turn in degrees spans far more than 2π; radians declared as degrees span ≤ 2π·(turns)
-        # with steps far below a degree.  Flag logs whose whole range fits in [−2π, 2π] while
-        # the reading steps are small: that is a radian log (less than 7° of rotation otherwise).
-        if hi - lo <= TWO_PI * 1.001 and max(abs(lo), abs(hi)) <= TWO_PI * 1.001 and moving.size \
-                and np.median(moving) < 1.0:
-            raise ScanError(f"{where(source, None, col)}: angles span only {lo:.4g}..{hi:.4g} while degrees "
-                            "were declared; they look like radians (set angle_unit='rad')")
+        # everything inside ±2π: radians (as degrees it would be less than one turn anyway)
+        if 0 < span and max(abs(lo), abs(hi)) <= TWO_PI * 1.001:
+            raise ScanError(f"{where(source, None, col)}: angles span only {lo:.4g}..{hi:.4g} although degrees "
+                            f"were declared ({declared}); they look like radians (set angle_unit='rad'), and as "
+                            "degrees they would cover less than one turn")
         return np.deg2rad(a)
     # declared radians
-    if moving.size:
-        wraps = moving > math.pi
-        med = float(np.median(moving[~wraps])) if (~wraps).any() else float(np.median(moving))
-        if hi > TWO_PI * 1.001 and (med > 1.0 or (np.abs(np.mod(a, 1.0)) < 1e-9).mean() > 0.5 and hi >= 90):
-            raise ScanError(f"{where(source, None, col)}: angles reach {hi:.4g} with steps of {med:.4g} while "
-                            "radians were declared; they look like degrees (set angle_unit='deg')")
+    if span > TWO_PI + math.radians(hysteresis_deg):
+        d = np.diff(a)
+        moving = d[np.abs(d) > 1e-9]
+        if moving.size:
+            med = float(np.median(np.abs(moving)))
+            sense = 1.0 if np.median(moving) >= 0 else -1.0
+            wraps = (np.abs(moving) > 300.0) & (np.sign(moving) != sense) & (max(abs(lo), abs(hi)) <= 360.5)
+            integral = float((np.abs(np.mod(a, 1.0)) < 1e-9).mean())
+            if wraps.any() or med > math.pi / 2 or (integral > 0.5 and hi >= 90):
+                why = ("jumps back by about 360 at wraps" if wraps.any() else
+                       f"steps of {med:.4g} per reading" if med > math.pi / 2 else "whole-numbered values")
+                raise ScanError(f"{where(source, None, col)}: angles reach {hi:.6g} with {why} although radians "
+                                f"were declared ({declared}); they look like degrees (set angle_unit='deg')")
     return a.copy()

@@ -102,13 +102,7 @@ def _reader():
     return pytest.importorskip("nullfit.logfile", reason="nullfit.logfile (read_scan) is not written yet")
 
 
-@pytest.mark.parametrize(
-    "run_id",
-    [pytest.param(r, marks=pytest.mark.xfail(
-        strict=True, reason="a gap longer than half a turn in a mod-360 log: scan.number_turns unwraps "
-                            "without time and merges two turns (reported to the lead)"))
-     if r == "C05" else r for r in sorted(SPECS)],
-)
+@pytest.mark.parametrize("run_id", sorted(SPECS))
 def test_read_scan_reads_each_committed_scan_as_simulated(run_id):
     logfile = _reader()
     from nullfit.simulate import simulate_scan

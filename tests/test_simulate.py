@@ -391,8 +391,6 @@ def test_2theta_estimates_scatter_about_the_truth_as_normal(kw):
         assert stats.kstest(z[:, col], "norm").pvalue > P_MIN
 
 
-@pytest.mark.xfail(strict=True, reason="scan.number_turns unwraps angles without looking at time, so a gap "
-                   "longer than half a turn in a mod-360 log merges two turns (reported to the lead)")
 def test_reader_turns_across_a_long_gap_match_the_construction():
     # 64 readings per 80 s turn; 600–780 s removed: turn 7 ends at 180°, turn 8 vanishes, turn 9 starts at 270°
     scan, truth = simulate_scan(n_turns=30, period_s=80.0, gaps=[(600.0, 780.0)], rng=1)
