@@ -30,7 +30,6 @@
 
 # %%
 import json
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -45,18 +44,9 @@ SEED = 20260312  # every random step below derives from this
 rng = np.random.default_rng(SEED)
 
 
-def demo_dir() -> Path:
-    """data_demo/ next to this notebook (nbmake runs with the notebook's folder as cwd),
-    else the copy that ships with nullfit."""
-    here = Path("..") / "data_demo"
-    if (here / "README.md").is_file():
-        return here
-    from nullfit.demo import demo_data_dir
+from nullfit.demo import demo_data_dir  # the repository's data_demo/ (or the bundled copy)
 
-    return demo_data_dir()
-
-
-DATA = demo_dir()
+DATA = demo_data_dir()
 LOG = DATA / "injected_2theta.csv"
 
 # %% [markdown]

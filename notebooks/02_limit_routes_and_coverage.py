@@ -25,7 +25,6 @@
 # simulation the property that separates them: **coverage**.
 
 # %%
-from pathlib import Path
 
 import matplotlib.pyplot as plt
 import numpy as np
@@ -41,16 +40,9 @@ pd.set_option("display.width", 120)
 SEED = 20260310  # each simulation below draws from its own generator seeded from this
 
 
-def demo_dir() -> Path:
-    here = Path("..") / "data_demo"
-    if (here / "README.md").is_file():
-        return here
-    from nullfit.demo import demo_data_dir
+from nullfit.demo import demo_data_dir  # the repository's data_demo/ (or the bundled copy)
 
-    return demo_data_dir()
-
-
-DATA = demo_dir()
+DATA = demo_data_dir()
 
 # %% [markdown]
 # ## One estimate, four limits

@@ -26,7 +26,6 @@
 # effect fixed to the table (lab frame) and an effect fixed on the sky (sky frame).
 
 # %%
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -41,16 +40,9 @@ SEED = 20260504
 rng = np.random.default_rng(SEED)
 
 
-def demo_dir() -> Path:
-    here = Path("..") / "data_demo"
-    if (here / "README.md").is_file():
-        return here
-    from nullfit.demo import demo_data_dir
+from nullfit.demo import demo_data_dir  # the repository's data_demo/ (or the bundled copy)
 
-    return demo_data_dir()
-
-
-DATA = demo_dir()
+DATA = demo_data_dir()
 logs = sorted((DATA / "campaign").glob("C*.csv"))
 scans = [nf.read_scan(p) for p in logs]
 print(", ".join(f"{s.run_id} ({s.epoch_iso[:10]})" for s in scans))

@@ -26,7 +26,6 @@
 # back-of-envelope σ/√N scaling.
 
 # %%
-from pathlib import Path
 
 import matplotlib.pyplot as plt
 import numpy as np
@@ -43,16 +42,9 @@ rng = np.random.default_rng(SEED)
 CL = 0.95
 
 
-def demo_dir() -> Path:
-    here = Path("..") / "data_demo"
-    if (here / "README.md").is_file():
-        return here
-    from nullfit.demo import demo_data_dir
+from nullfit.demo import demo_data_dir  # the repository's data_demo/ (or the bundled copy)
 
-    return demo_data_dir()
-
-
-DATA = demo_dir()
+DATA = demo_data_dir()
 
 # %% [markdown]
 # ## The noise to plan with
