@@ -28,7 +28,53 @@ _EXPORTS = {
     "Manifest": "scan",
     "read_scan": "logfile",
     "read_manifest": "manifest",
+    "find_manifest": "manifest",
+    "number_turns": "scan",
+    # synthetic scans
     "simulate_scan": "simulate",
+    "simulate_frame": "simulate",
+    "Truth": "simulate",
+    "Drift": "simulate",
+    # fitting
+    "fit_scan": "fit",
+    "ScanFit": "fit",
+    "demodulate": "turns",
+    "HarmonicEstimate": "fit",
+    "FitWarning": "design",
+    # limits
+    "Limit": "limits",
+    "amplitude_limit": "limits",
+    "upper_limit": "limits",
+    "limits_table": "limits",
+    "limits_table_for_fit": "limits",
+    "detection_significance": "limits",
+    "significance_for_fit": "limits",
+    "Significance": "limits",
+    "Posterior": "limits",
+    "unified_gaussian_interval": "limits",
+    # the hypothesis side
+    "Apparatus": "apparatus",
+    "Site": "sky",
+    "parse_velocity": "sky",
+    "horizontal_velocity": "sky",
+    "sidereal_time_deg": "sky",
+    "orbital": "sky",
+    "rotation": "sky",
+    "cmb": "sky",
+    "custom": "sky",
+    "lab_wind": "sky",
+    "EarthOrientationWarning": "sky",
+    "ExpectedSignal": "expected",
+    "expected_signal": "expected",
+    "expected_for_scan": "expected",
+    # one run, many runs
+    "analyse": "analysis",
+    "RunAnalysis": "analysis",
+    "compare_runs": "runs",
+    "combine_lab": "runs",
+    "combine_sky": "runs",
+    # diagnostics
+    "allan_deviation": "allan",
 }
 
 __all__ = sorted(_EXPORTS) + ["__version__"]

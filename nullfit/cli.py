@@ -141,13 +141,105 @@ def cmd_info(args) -> int:
     return 0
 
 
+def _hypothesis(args):
+    """(apparatus, site, velocity, speed) from the command line; None where not given."""
+    apparatus = site = velocity = None
+    if (args.arm_length is None) != (args.wavelength is None):
+        raise UsageError("give both --arm-length and --wavelength (or neither, to use the manifest's apparatus)")
+    if args.arm_length is not None:
+        from .apparatus import Apparatus
+
+        apparatus = Apparatus(args.arm_length, args.wavelength)
+    if args.site is not None:
+        from .sky import Site
+
+        try:
+            lat, lon = (float(v) for v in args.site.split(","))
+        except ValueError:
+            raise UsageError(f"--site must be LAT,LON in degrees (e.g. 58.39,13.85), not {args.site!r}") from None
+        site = Site(lat, lon, mark_azimuth_deg=args.mark_azimuth)
+    elif args.mark_azimuth is not None:
+        raise UsageError("--mark-azimuth needs --site LAT,LON")
+    if args.wind is not None:
+        from .sky import parse_velocity
+
+        velocity = parse_velocity(args.wind)
+    if apparatus is not None and args.speed is None and velocity is None:
+        raise UsageError("--arm-length/--wavelength predict a signal only with --speed or --wind")
+    return apparatus, site, velocity, args.speed
+
+
+def _analyse(args, scan, limits):
+    from .analysis import analyse
+
+    apparatus, site, velocity, speed = _hypothesis(args)
+    return analyse(scan, harmonics=args.harmonics, drift=args.drift, errors=args.errors, limits=limits,
+                   confidence_level=args.cl, rng=args.seed, apparatus=apparatus, site=site, velocity=velocity,
+                   speed_m_s=speed, progress=False if getattr(args, "json", False) else None)
+
+
+def cmd_fit(args) -> int:
+    scan = _read(args)
+    run = _analyse(args, scan, args.limits)
+    if args.json:
+        _print_json(run.to_dict())
+        return 0
+    print(run.summary().as_text())
+    if run.limits:
+        print()
+        print(run.limits_frame().to_string(index=False))
+    return 0
+
+
+def cmd_compare(args) -> int:
+    from .runs import compare_runs
+
+    apparatus, site, velocity, speed = _hypothesis(args)
+    table = compare_runs(args.runs, harmonics=args.harmonics, drift=args.drift, errors=args.errors,
+                         method=(args.limits or "feldman-cousins").split(",")[0], confidence_level=args.cl,
+                         rng=args.seed, apparatus=apparatus, site=site, velocity=velocity,
+                         speed_m_s=speed if speed is not None else 30_000.0)
+    if args.json:
+        print(table.to_json(orient="records", indent=2))
+    elif args.csv:
+        print(table.to_csv(index=False), end="")
+    else:
+        import pandas as pd
+
+        with pd.option_context("display.width", 200, "display.max_columns", 30):
+            print(table.to_string(index=False))
+    return 0
+
+
+def cmd_report(args) -> int:
+    import matplotlib
+
+    matplotlib.use("Agg")
+    from .demo import scan_report
+    from .outputs import check_output_file
+
+    out = check_output_file(args.output, force=args.force, inputs=[args.scan] + ([args.manifest] if args.manifest else []))
+    scan = _read(args)
+    run = _analyse(args, scan, args.limits or "feldman-cousins,neyman,bayes,bootstrap")
+    inputs = [Path(args.scan)]
+    from .manifest import find_manifest
+
+    man = Path(args.manifest) if args.manifest else find_manifest(Path(args.scan))
+    if man is not None:
+        inputs.append(man)
+    html = scan_report(run, inputs=inputs, settings={"command": "nullfit report"})
+    out.write_text(html, encoding="utf-8")
+    print(f"report written to {out}")
+    return 0
+
+
 def cmd_demo(args) -> int:
     from .demo import run_demo
 
     return run_demo(data=args.data, out=None if args.no_output else args.out, force=args.force, seed=args.seed)
 
 
-COMMANDS = {"info": cmd_info, "demo": cmd_demo}
+COMMANDS = {"info": cmd_info, "demo": cmd_demo, "fit": cmd_fit, "compare": cmd_compare, "report": cmd_report}
 
 
 def main(argv=None) -> int:
@@ -170,11 +262,25 @@ def main(argv=None) -> int:
     except (UsageError, FileExistsError, FileNotFoundError, IsADirectoryError, PermissionError) as err:
         print(f"nullfit: {_one_line(err)}", file=sys.stderr)
         return EXIT_BAD_INPUT
-    except ValueError as err:  # ScanError is a ValueError; so are bad option values
+    except ValueError as err:  # ScanError is a ValueError; so are nullfit's checks of option values
+        if not _raised_by_nullfit(err):
+            raise  # a ValueError from inside a library is a bug, not bad input: keep its traceback
         print(f"nullfit: {_one_line(err)}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except BrokenPipeError:  # pragma: no cover - e.g. `nullfit fit ... | head`
         return 0
+
+
+def _raised_by_nullfit(err: BaseException) -> bool:
+    """True when the innermost frame that raised ``err`` is nullfit's own code."""
+    tb = err.__traceback__
+    last = None
+    while tb is not None:
+        last = tb
+        tb = tb.tb_next
+    if last is None:
+        return True
+    return Path(last.tb_frame.f_code.co_filename).resolve().is_relative_to(Path(__file__).resolve().parent)
 
 
 def _one_line(err: BaseException) -> str:
