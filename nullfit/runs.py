@@ -46,7 +46,7 @@ from .summary import Described, Summary
 
 
 # --------------------------------------------------------------------------- inputs
-def _analyses(runs, *, rng=None, **kw) -> tuple[list, int]:
+def _analyses(runs, *, rng=None, progress=None, **kw) -> tuple[list, int]:
     """Turn paths, Scans and RunAnalysis objects into RunAnalysis objects (one child seed each)."""
     from .analysis import RunAnalysis, analyse, child_seeds
     from .logfile import read_scan
@@ -61,7 +61,10 @@ def _analyses(runs, *, rng=None, **kw) -> tuple[list, int]:
         _, seed = make_rng(rng)
     seeds = child_seeds(seed, len(runs))
     out = []
-    for r, s in zip(runs, seeds):
+    from tqdm import tqdm
+
+    show = progress if progress is not None else len(runs) > 3
+    for r, s in tqdm(list(zip(runs, seeds)), desc="runs", unit="run", disable=not show, leave=False):
         if isinstance(r, RunAnalysis):
             out.append(r)
             continue
@@ -72,20 +75,21 @@ def _analyses(runs, *, rng=None, **kw) -> tuple[list, int]:
 
 def compare_runs(runs: Iterable, *, speed_m_s: float | None = 30_000.0, velocity=None, apparatus=None, site=None,
                  method: str = "feldman-cousins", confidence_level: float = 0.95, harmonics=(1, 2),
-                 drift="per-turn", errors="turns", rng=None):
+                 drift="per-turn", errors="turns", rng=None, progress=None):
     """The run table: one row per run (paths, Scans or `RunAnalysis` objects).
 
     Each run uses its own manifest's apparatus and site unless ``apparatus``/``site`` are given.
     ``velocity`` (a preset or spec string, see :func:`nullfit.sky.parse_velocity`) projects the
     hypothesis on the sky at each run's site and time; without it the wind is a fixed in-plane
     wind of ``speed_m_s``.  The table's ``attrs`` record the settings and the master seed.
+    A progress bar (stderr) shows for more than three runs unless ``progress=False``.
     """
     import pandas as pd
 
     cl = check_confidence_level(confidence_level)
     analyses, seed = _analyses(runs, rng=rng, speed_m_s=speed_m_s, velocity=velocity, apparatus=apparatus,
                                site=site, limits=(method,), confidence_level=cl, harmonics=harmonics,
-                               drift=drift, errors=errors)
+                               drift=drift, errors=errors, progress=progress)
     rows = [run_row(a) for a in analyses]
     table = pd.DataFrame(rows)
     table.attrs.update({"seed": seed, "confidence_level": cl, "method": method, "speed_m_s": speed_m_s,

@@ -125,3 +125,26 @@ def test_sky_speed_bound_with_slightly_different_run_speeds():
     # v_up = v_ref sqrt(κ_up) (runs.py module docstring)
     assert df.loc["feldman-cousins", "speed_bound_m_s"] == pytest.approx(
         fit.reference_speed_m_s * np.sqrt(df.loc["feldman-cousins", "kappa_upper"]))
+
+
+def test_run_table_ratio_uses_one_convention_on_both_sides():
+    """Expected/bound must compare amplitude with amplitude (equivalently peak-to-peak with
+    peak-to-peak); mixing them is the factor-of-two error (DESIGN.md conventions)."""
+    from pathlib import Path
+
+    from nullfit.runs import compare_runs
+
+    demo = Path(__file__).resolve().parent.parent / "data_demo" / "campaign"
+    table = compare_runs(sorted(demo.glob("C0[12].csv")), speed_m_s=30_000.0, rng=1, progress=False)
+    np.testing.assert_allclose(table["ratio_expected_to_bound"], table["expected_amplitude"] / table["upper_amplitude"],
+                               rtol=1e-12)
+    np.testing.assert_allclose(table["ratio_expected_to_bound"],
+                               table["expected_peak_to_peak"] / table["upper_peak_to_peak"], rtol=1e-12)
+    np.testing.assert_allclose(table["expected_peak_to_peak"], 2 * table["expected_amplitude"], rtol=1e-15)
+    # classical wind, equal arms: A2 = L v^2 / (lambda c^2) (DESIGN.md) for the manifest's apparatus
+    L, lam = table["arm_length_m"].iloc[0], table["wavelength_m"].iloc[0]
+    assert table["expected_amplitude"].iloc[0] == pytest.approx(L * 30_000.0**2 / (lam * 299_792_458.0**2), rel=1e-9)
+    # speed bound inverts the bound: v_max = c sqrt(lambda A_up / L)
+    np.testing.assert_allclose(table["speed_bound_m_s"],
+                               299_792_458.0 * np.sqrt(lam * table["upper_amplitude"] / L), rtol=1e-9)
+    assert table.attrs["seed"] == 1
