@@ -119,17 +119,6 @@ def harmonic_rows(angle, ks, out=None) -> np.ndarray:
     return out
 
 
-def scan_marks(scan) -> int | None:
-    """Distinct azimuths per turn when the table is read at ≤ 64 marks, else None — like
-    ``Scan.marks`` but from an evenly strided subsample of about 50 000 readings, so that a
-    long log is not sorted."""
-    step = max(1, scan.n_samples // 50_000)
-    a = np.asarray(scan.angle)[::step]
-    codes = np.round(np.mod(a, TWO_PI) * (1e6 / TWO_PI)) % 1_000_000
-    u = np.unique(codes)
-    return int(u.size) if u.size <= 64 else None
-
-
 def check_separable(angle, harmonics, *, marks: int | None = None, source: str | None = None) -> None:
     """Refuse (``ScanError``) when the angle coverage cannot separate the requested harmonics.
 

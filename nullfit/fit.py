@@ -57,7 +57,7 @@ import numpy as np
 
 from .conventions import amplitude_phase, check_confidence_level, peak_to_peak
 from .design import (FitWarning, check_harmonics, check_knot_spacing, check_separable, harmonic_names,
-                     parse_drift, scan_marks, spline_design_sparse, spline_intervals, spline_knots,
+                     parse_drift, spline_design_sparse, spline_intervals, spline_knots,
                      typical_turn_period)
 from .scan import ScanError, where
 from .summary import Described, Summary, fmt
@@ -512,7 +512,7 @@ def fit_scan(scan, *, harmonics=(1, 2), drift="per-turn", errors="turns", degree
     if kind in ("turns", "blocks") and spec.kind != "per-turn":
         raise ValueError(f"errors={kind!r} estimates the covariance from per-turn demodulation, which removes "
                          f"drift turn by turn: use drift='per-turn', or errors='hac' with drift={spec.label!r}")
-    check_separable(scan.angle, ks, marks=scan_marks(scan), source=scan.source)
+    check_separable(scan.angle, ks, marks=scan.marks, source=scan.source)
     if spec.kind == "spline":
         check_knot_spacing(spec.knot_turns, ks, stacklevel=3)
     if kind in ("turns", "blocks"):

@@ -32,7 +32,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .design import (Segments, check_harmonics, check_separable, harmonic_names, harmonic_rows, parse_drift,
-                     scale_time, scan_marks, turn_segments)
+                     scale_time, turn_segments)
 from .scan import ScanError, where
 
 #: Rows per chunk (whole turns are kept together, so a chunk may be longer).
@@ -435,7 +435,7 @@ def demodulate(scan, *, harmonics=(1, 2), drift="per-turn", complete_only: bool 
     if spec.kind != "per-turn":
         raise ValueError(f"demodulate fits drift turn by turn: drift must be 'per-turn' or 'per-turn:d', "
                          f"not {drift!r}")
-    check_separable(scan.angle, ks, marks=scan_marks(scan), source=scan.source)
+    check_separable(scan.angle, ks, marks=scan.marks, source=scan.source)
     aux = tuple(aux or ())
     if aux and aux_coef is None:
         raise ValueError("aux needs aux_coef (use fit_scan to estimate the auxiliary coefficients)")

@@ -165,11 +165,24 @@ def test_dense_per_turn_design_has_block_columns():
     assert math.isclose(sl.max(), 1.0) and math.isclose(sl.min(), -1.0)
 
 
-def test_scan_marks_matches_scan_property():
-    from nullfit.design import scan_marks
-
+def test_marks_counted_from_every_reading():
     s = _marks_scan(12)
-    assert scan_marks(s) == s.marks == 12
+    assert s.marks == 12
     t = np.arange(5000) * 0.1
     cont = Scan.from_arrays(t, np.mod(t * 7.3, 360.0), np.sin(t) + 0.01 * np.cos(3 * t))
-    assert scan_marks(cont) is None and cont.marks is None
+    assert cont.marks is None
+
+
+def test_long_mark_log_is_not_mistaken_for_one_mark():
+    """Regression: marks were once counted on a strided subsample (stride n // 50 000); with
+    17 readings per turn (16 marks + the start mark re-read) and 50 000 turns the stride equals
+    the readings per turn and every sampled reading sat on the same mark, so a valid log was
+    refused as 'read at 1 marks per turn'."""
+    from nullfit.fit import fit_scan
+
+    turns = 50_000
+    a = np.tile(np.r_[np.arange(16) * 22.5, 0.0], turns)
+    y = np.random.default_rng(0).normal(size=a.size)
+    s = Scan.from_arrays(np.arange(a.size, dtype=float), a, y)
+    assert s.marks == 16
+    assert fit_scan(s).n_turns > 0
