@@ -128,7 +128,7 @@ class RunAnalysis(Described):
         return d
 
     def limits_frame(self):
-        """The limits side by side, one row per method (amplitude and peak-to-peak)."""
+        """The limits side by side, one row per method (amplitude and peak-to-peak, in ``unit``)."""
         import pandas as pd
 
         rows = []
@@ -139,6 +139,7 @@ class RunAnalysis(Described):
                 "lower": lim.lower,
                 "upper (amplitude)": lim.upper,
                 "upper (peak-to-peak)": None if lim.upper is None else peak_to_peak(lim.upper),
+                "unit": self.scan.signal_unit,
                 "empty": bool(getattr(lim, "empty", False)),
                 "settings": _limit_settings(lim),
             })

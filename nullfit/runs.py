@@ -132,6 +132,11 @@ def run_row(a) -> dict[str, Any]:
     }
 
 
+def _chi2_p_value(chi2: float, dof: int) -> float:
+    """Consistency p-value: upper tail of χ² on ``dof`` degrees of freedom (nan without dof)."""
+    return float(stats.chi2.sf(chi2, dof)) if dof > 0 else float("nan")
+
+
 # --------------------------------------------------------------------------- lab frame
 @dataclass(frozen=True, eq=False)
 class LabCombination(Described):
@@ -148,7 +153,7 @@ class LabCombination(Described):
 
     @property
     def p_value(self) -> float:
-        return float(stats.chi2.sf(self.chi2, self.dof)) if self.dof > 0 else float("nan")
+        return _chi2_p_value(self.chi2, self.dof)
 
     @property
     def amplitude(self) -> float:
@@ -248,7 +253,7 @@ class ScaleFit(Described):
 
     @property
     def p_value(self) -> float:
-        return float(stats.chi2.sf(self.chi2, self.dof)) if self.dof > 0 else float("nan")
+        return _chi2_p_value(self.chi2, self.dof)
 
     def limits(self, confidence_level: float = 0.95):
         """Limits on κ by the routes of the amplitude limits, in one dimension (κ ≥ 0):

@@ -148,3 +148,26 @@ def test_run_table_ratio_uses_one_convention_on_both_sides():
     np.testing.assert_allclose(table["speed_bound_m_s"],
                                299_792_458.0 * np.sqrt(lam * table["upper_amplitude"] / L), rtol=1e-9)
     assert table.attrs["seed"] == 1
+
+
+def test_kappa_bayes_and_neyman_limits_against_scipy():
+    """Bayes, flat prior on κ ≥ 0: the posterior is a normal truncated at 0, so the credible
+    limit is scipy.stats.truncnorm's quantile (at κ̂ = 0: the half-normal quantile,
+    scipy.stats.halfnorm); Neyman one-sided: κ̂ + z_CL σ, empty when negative."""
+    for kappa, sigma, cl in ((0.0, 0.3, 0.95), (0.4, 0.2, 0.9), (-0.5, 0.2, 0.95)):
+        fit = ScaleFit(("a", "b"), kappa, sigma, 1.0, 3, 30_000.0, "test", np.zeros((2, 2)))
+        df = fit.limits(cl).set_index("method")
+        ref = stats.truncnorm.ppf(cl, -kappa / sigma, np.inf, loc=kappa, scale=sigma)
+        assert df.loc["bayes", "kappa_upper"] == pytest.approx(ref, rel=1e-9)
+        if kappa == 0.0:
+            assert df.loc["bayes", "kappa_upper"] == pytest.approx(stats.halfnorm.ppf(cl, scale=sigma), rel=1e-9)
+        ney = kappa + stats.norm.ppf(cl) * sigma
+        assert bool(df.loc["neyman", "empty"]) == (ney < 0)
+        if ney >= 0:
+            assert df.loc["neyman", "kappa_upper"] == pytest.approx(ney, rel=1e-12)
+        z = stats.norm.ppf(0.5 + cl / 2)
+        lo, up = df.loc["central (signed κ, RMS)", ["kappa_lower", "kappa_upper"]]
+        assert (lo, up) == pytest.approx((kappa - z * sigma, kappa + z * sigma), rel=1e-12)
+        # |β − δ − ½| bound = max(|κ_lo|, |κ_up|)/2 since κ = −2(β − δ − ½) (runs.py docstring)
+        assert df.loc["central (signed κ, RMS)", "rms_bound_abs_beta_minus_delta_minus_half"] == \
+            pytest.approx(max(abs(lo), abs(up)) / 2, rel=1e-12)
