@@ -132,12 +132,9 @@ def _print_json(obj) -> None:
 def cmd_info(args) -> int:
     scan = _read(args)
     if args.json:
-        _print_json({"source": scan.source, "n_samples": scan.n_samples, "n_turns": scan.n_turns,
-                     "n_complete_turns": scan.n_complete_turns, "dropped_rows": scan.dropped_rows,
-                     "dropped": dict(scan.dropped), "signal_unit": scan.signal_unit,
-                     "epoch_utc": scan.epoch_iso, "marks": scan.marks})
+        _print_json(scan.to_dict())
     else:
-        print(scan.describe().as_text())
+        print(scan.summary().as_text())
     return 0
 
 

@@ -176,7 +176,7 @@ def scan_report(a, *, inputs=(), settings=None) -> str:
     figs = scan_figures(a)
     prov = provenance(inputs, settings={**dict(a.settings), **dict(settings or {})}, seeds={"run": a.seed},
                       dropped={"read": dict(a.scan.dropped), "partial_turn_rows": a.fit.excluded_rows})
-    items = [a.scan.summary() if hasattr(a.scan, "summary") else a.scan.describe(), a]
+    items = [a.scan.summary(), a]
     if a.limits:
         items.append(a.limits_frame())
     html = render_report(f"nullfit report — run {a.run_id}", [("Run", items)],

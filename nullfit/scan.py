@@ -566,13 +566,6 @@ class Scan(Described):
             notes += ("auxiliary columns: " + ", ".join(self.aux),)
         return Summary(f"Scan {self.run_id}", tuple(rows), notes)
 
-    def describe(self) -> Summary:
-        """Alias of :meth:`summary`."""
-        return self.summary()
-
-    def summary_text(self) -> str:
-        return self.summary().as_text()
-
     def to_dict(self) -> dict:
         """The scan's facts (not its arrays) as a JSON-able dict."""
         return {
@@ -587,6 +580,7 @@ class Scan(Described):
             "epoch_unix": self.epoch_unix,
             "epoch_utc": self.epoch_iso,
             "signal_unit": self.signal_unit,
+            "dropped_rows": self.dropped_rows,
             "dropped": {why: int(c) for why, c in self.dropped},
             "aux_columns": list(self.aux),
         }

@@ -91,3 +91,11 @@ def test_compare_csv(tmp_path):
     assert r.returncode == 0, r.stderr
     lines = r.stdout.strip().splitlines()
     assert len(lines) == 3 and "ratio_expected_to_bound" in lines[0]
+
+
+def test_info_json_is_the_scan_description():
+    r = run_cli("info", DEMO / "injected_2theta.csv", "--json")
+    assert r.returncode == 0, r.stderr
+    d = json.loads(r.stdout)
+    assert d["marks"] == 16 and d["n_complete_turns"] == 60 and d["dropped_rows"] == 0
+    assert d["epoch_utc"] == "2026-03-12T20:00:00Z"  # data_demo/README.md: S01 starts 2026-03-12 20:00 UTC
