@@ -93,7 +93,10 @@ def build_parser() -> argparse.ArgumentParser:
     _expected_options(f)
     f.add_argument("--json", action="store_true", help="print one JSON object on stdout")
 
-    c = sub.add_parser("compare", help="run table across many scans (expected vs bound)")
+    c = sub.add_parser("compare", help="run table across many scans (expected vs bound)",
+                       description="One row per run: expected 2θ amplitude and peak-to-peak, the upper limit "
+                                   "(one method, default feldman-cousins) as amplitude and peak-to-peak, their "
+                                   "ratio and the speed bound. Without --speed the wind speed is 30000 m/s.")
     c.add_argument("runs", nargs="+", metavar="RUN", help="scan logs (manifests beside them)")
     _fit_options(c)
     _limit_options(c)
@@ -192,8 +195,11 @@ def cmd_compare(args) -> int:
     from .runs import compare_runs
 
     apparatus, site, velocity, speed = _hypothesis(args)
+    methods = [m for m in (args.limits or "feldman-cousins").split(",") if m.strip()]
+    if len(methods) != 1:
+        raise UsageError("compare puts one limit method in the run table: give --limits METHOD (e.g. neyman)")
     table = compare_runs(args.runs, harmonics=args.harmonics, drift=args.drift, errors=args.errors,
-                         method=(args.limits or "feldman-cousins").split(",")[0], confidence_level=args.cl,
+                         method=methods[0].strip(), confidence_level=args.cl,
                          rng=args.seed, apparatus=apparatus, site=site, velocity=velocity,
                          speed_m_s=speed if speed is not None else 30_000.0)
     if args.json:

@@ -99,3 +99,9 @@ def test_info_json_is_the_scan_description():
     d = json.loads(r.stdout)
     assert d["marks"] == 16 and d["n_complete_turns"] == 60 and d["dropped_rows"] == 0
     assert d["epoch_utc"] == "2026-03-12T20:00:00Z"  # data_demo/README.md: S01 starts 2026-03-12 20:00 UTC
+
+
+def test_compare_takes_one_limit_method():
+    runs = sorted((DEMO / "campaign").glob("C01.csv"))
+    r = run_cli("compare", *runs, "--limits", "neyman,bayes")
+    assert r.returncode == 2 and "one limit method" in r.stderr and "Traceback" not in r.stderr
