@@ -215,7 +215,7 @@ def analyse(scan, *, harmonics=(1, 2), harmonic: int = 2, drift="per-turn", erro
     (which takes ``"poly:3"``, ``"spline:2"``, ``"hac:12"``, ``"blocks:5"``).  ``rng`` seeds every random step; the seed is
     recorded (the bootstrap gets a child seed, also recorded in its `Limit`)."""
     from .fit import fit_scan
-    from .limits import amplitude_limit, detection_significance
+    from .limits import significance_for_fit, upper_limit
 
     cl = check_confidence_level(confidence_level)
     ks = parse_harmonics(harmonics)
@@ -232,25 +232,18 @@ def analyse(scan, *, harmonics=(1, 2), harmonic: int = 2, drift="per-turn", erro
     s_boot, s_sig = child_seeds(seed, 2)
 
     fit = fit_scan(scan, harmonics=ks, drift=drift, errors=errors)
-    h = fit.harmonic(harmonic)
-    turns = None
-    if fit.per_turn is not None and f"c{harmonic}" in fit.per_turn:
-        turns = fit.per_turn[[f"c{harmonic}", f"s{harmonic}"]].to_numpy(dtype=float)
-
+    if "bootstrap" in methods and fit.per_turn is None:
+        raise ValueError("the bootstrap needs per-turn coefficients: use errors 'turns' or 'blocks:N'")
     out = {}
     for m in methods:
-        opts: dict[str, Any] = {"harmonic": harmonic, "unit": scan.signal_unit}
+        opts: dict[str, Any] = {"unit": scan.signal_unit}
         if m == "bootstrap":
-            if turns is None:
-                raise ValueError("the bootstrap needs per-turn coefficients: use --errors turns or blocks:N")
-            opts.update(replicates=bootstrap_replicates)
+            opts["replicates"] = bootstrap_replicates
             if progress is not None:
                 opts["progress"] = progress
-            out[m] = amplitude_limit(h.cos, h.sin, h.cov, method=m, confidence_level=cl, rng=s_boot,
-                                     turns=turns, **opts)
-        else:
-            out[m] = amplitude_limit(h.cos, h.sin, h.cov, method=m, confidence_level=cl, dof=fit.cov_dof, **opts)
-    sig = detection_significance(h.cos, h.sin, h.cov, rng=s_sig, dof=fit.cov_dof) if methods else None
+        out[m] = upper_limit(fit, harmonic=harmonic, method=m, confidence_level=cl,
+                             rng=s_boot if m == "bootstrap" else None, **opts)
+    sig = significance_for_fit(fit, harmonic=harmonic, rng=s_sig) if methods else None
 
     expected = app = None
     if hypothesis:
