@@ -3,10 +3,16 @@
 The public names are imported lazily, so ``import nullfit`` (and ``nullfit --help``) stays fast;
 the heavy libraries load on first use of the function that needs them.
 
-Data flows one way::
+The subpackages are the stages of the analysis, and data flow one way through them::
 
-    log ──read_scan──▶ Scan ──fit_scan──▶ ScanFit ──upper_limit──▶ Limit ──┐
-    Apparatus + Site + velocity ──expected_signal──▶ ExpectedSignal ──────┴─▶ compare_runs ─▶ plots, report
+    reading ──▶ fitting ──▶ limits ──┐
+    (log → Scan)  (Scan → ScanFit)   (→ Limit)   ├──▶ campaign ──▶ figures, output (report, demo)
+    hypothesis (apparatus, site, velocities, expected signal) ┘   (runs, tables, combinations)
+
+``core`` holds what every stage shares (conventions, rendering, error types, provenance);
+``simulation`` makes synthetic scans with a known truth.  A module only imports from its own
+stage or from stages before it (``tests/test_layout.py`` checks this, and that there are no
+import cycles).
 """
 
 from __future__ import annotations
@@ -17,64 +23,63 @@ __version__ = "0.1.0"
 
 # public name -> module that defines it
 _EXPORTS = {
-    # conventions
-    "amplitude_phase": "conventions",
-    "peak_to_peak": "conventions",
-    "SPEED_OF_LIGHT": "conventions",
-    # scans
-    "Scan": "scan",
-    "ScanError": "scan",
-    "ScanWarning": "scan",
-    "Manifest": "scan",
-    "read_scan": "logfile",
-    "read_manifest": "manifest",
-    "find_manifest": "manifest",
-    "number_turns": "scan",
+    # core
+    "amplitude_phase": "core.conventions",
+    "peak_to_peak": "core.conventions",
+    "SPEED_OF_LIGHT": "core.conventions",
+    "ScanError": "core.errors",
+    "AnalysisError": "core.errors",
+    "ScanWarning": "core.errors",
+    "FitWarning": "core.errors",
+    # reading
+    "Scan": "reading.scan",
+    "Manifest": "reading.manifest",
+    "read_scan": "reading.files",
+    "read_manifest": "reading.manifest",
+    "find_manifest": "reading.manifest",
+    "number_turns": "reading.turn_numbering",
     # synthetic scans
-    "simulate_scan": "simulate",
-    "simulate_frame": "simulate",
-    "Truth": "simulate",
-    "Drift": "simulate",
+    "simulate_scan": "simulation.scans",
+    "simulate_frame": "simulation.scans",
+    "Truth": "simulation.truth",
+    "Drift": "simulation.models",
     # fitting
-    "fit_scan": "fit",
-    "ScanFit": "fit",
-    "demodulate": "turns",
-    "HarmonicEstimate": "fit",
-    "FitWarning": "design",
+    "fit_scan": "fitting.fit",
+    "ScanFit": "fitting.scanfit",
+    "HarmonicEstimate": "fitting.estimate",
+    "demodulate": "fitting.demodulate",
+    "allan_deviation": "fitting.allan",
+    "AllanDeviation": "fitting.allan",
     # limits
     "Limit": "limits",
+    "ScalarEstimate": "limits",
     "amplitude_limit": "limits",
     "upper_limit": "limits",
+    "scalar_limit": "limits",
     "limits_table": "limits",
-    "limits_table_for_fit": "limits",
     "detection_significance": "limits",
-    "significance_for_fit": "limits",
     "Significance": "limits",
     "Posterior": "limits",
     "unified_gaussian_interval": "limits",
     # the hypothesis side
-    "Apparatus": "apparatus",
-    "Site": "sky",
-    "parse_velocity": "sky",
-    "horizontal_velocity": "sky",
-    "sidereal_time_deg": "sky",
-    "orbital": "sky",
-    "rotation": "sky",
-    "cmb": "sky",
-    "custom": "sky",
-    "lab_wind": "sky",
-    "EarthOrientationWarning": "sky",
-    "ExpectedSignal": "expected",
-    "expected_signal": "expected",
-    "expected_for_scan": "expected",
+    "Apparatus": "hypothesis.apparatus",
+    "Site": "hypothesis.site",
+    "parse_velocity": "hypothesis.velocities",
+    "horizontal_velocity": "hypothesis.horizontal",
+    "HorizontalVelocity": "hypothesis.horizontal",
+    "sidereal_time_deg": "hypothesis.earth",
+    "EarthOrientationWarning": "hypothesis.offline",
+    "ExpectedSignal": "hypothesis.expected",
+    "expected_signal": "hypothesis.expected",
+    "expected_for_scan": "hypothesis.expected",
     # one run, many runs
-    "analyse": "analysis",
-    "RunAnalysis": "analysis",
-    "compare_runs": "runs",
-    "combine_lab": "runs",
-    "combine_sky": "runs",
-    # diagnostics
-    "allan_deviation": "allan",
+    "analyse": "campaign.analysis",
+    "RunAnalysis": "campaign.analysis",
+    "compare_runs": "campaign.runs",
+    "combine_lab": "campaign.combine",
+    "combine_sky": "campaign.combine",
+    "LabCombination": "campaign.combine",
+    "ScaleFit": "campaign.combine",
 }
 
 __all__ = sorted(_EXPORTS) + ["__version__"]

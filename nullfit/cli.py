@@ -58,7 +58,7 @@ def _expected_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--mark-azimuth", type=float, metavar="DEG",
                    help="geographic azimuth of the table's reference mark (degrees, N through E)")
     g.add_argument("--wind", default=None, metavar="PRESET",
-                   help="orbital | rotation | cmb | custom:RA,DEC[,SPEED] (needs a site); "
+                   help="orbital | earth-rotation | cmb | custom:ra=RA,dec=DEC[,speed=V] (needs a site); "
                         "default: fixed in-plane wind of --speed")
 
 
@@ -118,7 +118,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 # --------------------------------------------------------------------------- helpers
 def _read(args):
-    from .logfile import read_scan
+    from .reading.files import read_scan
 
     return read_scan(args.scan, time=args.time, angle=args.angle, signal=args.signal,
                      angle_unit=args.angle_unit, manifest=args.manifest,
@@ -126,7 +126,7 @@ def _read(args):
 
 
 def _print_json(obj) -> None:
-    from .summary import jsonable
+    from .core.render import jsonable
 
     print(json.dumps(jsonable(obj), indent=2, allow_nan=False))
 
@@ -147,11 +147,11 @@ def _hypothesis(args):
     if (args.arm_length is None) != (args.wavelength is None):
         raise UsageError("give both --arm-length and --wavelength (or neither, to use the manifest's apparatus)")
     if args.arm_length is not None:
-        from .apparatus import Apparatus
+        from .hypothesis.apparatus import Apparatus
 
         apparatus = Apparatus(args.arm_length, args.wavelength)
     if args.site is not None:
-        from .sky import Site
+        from .hypothesis.site import Site
 
         try:
             lat, lon = (float(v) for v in args.site.split(","))
@@ -161,7 +161,7 @@ def _hypothesis(args):
     elif args.mark_azimuth is not None:
         raise UsageError("--mark-azimuth needs --site LAT,LON")
     if args.wind is not None:
-        from .sky import parse_velocity
+        from .hypothesis.velocities import parse_velocity
 
         velocity = parse_velocity(args.wind)
     if apparatus is not None and args.speed is None and velocity is None:
@@ -170,7 +170,7 @@ def _hypothesis(args):
 
 
 def _analyse(args, scan, limits):
-    from .analysis import analyse
+    from .campaign.analysis import analyse
 
     apparatus, site, velocity, speed = _hypothesis(args)
     return analyse(scan, harmonics=args.harmonics, drift=args.drift, errors=args.errors, limits=limits,
@@ -192,7 +192,7 @@ def cmd_fit(args) -> int:
 
 
 def cmd_compare(args) -> int:
-    from .runs import compare_runs
+    from .campaign.runs import compare_runs
 
     apparatus, site, velocity, speed = _hypothesis(args)
     methods = [m for m in (args.limits or "feldman-cousins").split(",") if m.strip()]
@@ -218,14 +218,14 @@ def cmd_report(args) -> int:
     import matplotlib
 
     matplotlib.use("Agg")
-    from .demo import scan_report
-    from .outputs import check_output_file
+    from .output.files import check_output_file
+    from .output.scan_report import scan_report
 
     out = check_output_file(args.output, force=args.force, inputs=[args.scan] + ([args.manifest] if args.manifest else []))
     scan = _read(args)
     run = _analyse(args, scan, args.limits or "feldman-cousins,neyman,bayes,bootstrap")
     inputs = [Path(args.scan)]
-    from .manifest import find_manifest
+    from .reading.manifest import find_manifest
 
     man = Path(args.manifest) if args.manifest else find_manifest(Path(args.scan))
     if man is not None:
@@ -237,7 +237,7 @@ def cmd_report(args) -> int:
 
 
 def cmd_demo(args) -> int:
-    from .demo import run_demo
+    from .output.demo import run_demo
 
     return run_demo(data=args.data, out=None if args.no_output else args.out, force=args.force, seed=args.seed)
 

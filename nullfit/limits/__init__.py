@@ -18,53 +18,40 @@ package gives the statements that are right, so that they can be compared side b
     stated).
 
 All limits are on the *amplitude*; :attr:`Limit.upper_peak_to_peak` gives ``2·upper``.
-Entry points: :func:`amplitude_limit` (an estimate from anywhere), :func:`upper_limit` (a scan
-fit), :func:`limits_table` / :func:`limits_table_for_fit` (every method, one row each) and
+Every method sits in one registry (:mod:`.registry`): a name → one function signature
+``(estimate, confidence_level, *, rng, **options) → Limit``.  Entry points:
+:func:`amplitude_limit` (a harmonic estimate — ``fit.harmonic(2)`` — or a bare ``(c, s, cov)``),
+:func:`upper_limit` (a scan fit), :func:`limits_table` (every method, one row each),
+:func:`scalar_limit` (one Gaussian parameter such as a sky-template scale κ) and
 :func:`detection_significance` (p-value under ``A = 0``).
 """
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
 
-from ..conventions import check_confidence_level, make_rng
+from ..core.conventions import check_confidence_level, make_rng
 from .bayes import PRIORS
 from .bootstrap import SCHEMES
-from .covariance import check_dof, covariance_shape
+from .inputs import as_estimate
+from .registry import AMPLITUDE_METHODS, METHODS, get, method_name
 from .result import Limit, Posterior
+from .scalar import ScalarEstimate
 from .significance import Significance, detection_significance
 from .unified import unified_gaussian_interval
 
-METHODS = ("feldman-cousins", "neyman", "bayes", "bootstrap")
-_ALIASES = {"fc": "feldman-cousins", "unified": "feldman-cousins", "feldman_cousins": "feldman-cousins"}
-_OPTIONS = {
-    "feldman-cousins": set(),
-    "neyman": set(),
-    "bayes": {"prior", "posterior_points"},
-    "bootstrap": {"scheme", "block_length", "replicates", "progress", "interval"},
-}
-_COMMON = {"harmonic", "unit"}
 
-
-def _method(method: str) -> str:
-    m = _ALIASES.get(str(method).lower(), str(method).lower())
-    if m not in METHODS:
-        raise ValueError(f"method must be one of {', '.join(METHODS)}, not {method!r}")
-    return m
-
-
-def amplitude_limit(c, s, cov, *, method: str = "feldman-cousins", confidence_level: float = 0.95, rng=None,
-                    dof=None, turns=None, **options) -> Limit:
-    """Limit on the amplitude of an estimate ``(c, s)`` with covariance ``cov``.
+def amplitude_limit(c, s=None, cov=None, *, method: str = "feldman-cousins", confidence_level: float = 0.95,
+                    rng=None, dof=None, turns=None, harmonic=None, unit=None, **options) -> Limit:
+    """Limit on the amplitude of a harmonic estimate.
 
     Parameters
     ----------
-    c, s : float
-        Cosine and sine coefficients of the harmonic (amplitude ``hypot(c, s)``).
-    cov : array_like, shape (2, 2)
-        Covariance of ``(c, s)``.
+    c : HarmonicEstimate or float
+        A harmonic estimate (``fit.harmonic(2)``: coefficients, covariance, dof, per-turn
+        series and unit travel with it), or the cosine coefficient of a bare ``(c, s, cov)``.
+    s, cov : float and array_like (2, 2), optional
+        Sine coefficient and covariance of ``(c, s)`` when ``c`` is a number.
     method : {"feldman-cousins", "neyman", "bayes", "bootstrap"}
     confidence_level : float
         E.g. 0.95 (never alpha).
@@ -76,87 +63,38 @@ def amplitude_limit(c, s, cov, *, method: str = "feldman-cousins", confidence_le
         account for the estimated covariance (Hotelling), see the method modules.
     turns : array_like, shape (N, 2), optional
         Per-turn ``(c, s)`` estimates; required by ``"bootstrap"``.
+    harmonic, unit : optional
+        Labels (harmonic order ``k``; signal unit).
     **options
-        ``harmonic`` (int, for labels), ``unit`` (str); bayes: ``prior`` ("plane" or
-        "amplitude"), ``posterior_points``; bootstrap: ``scheme`` ("moving", "circular",
-        "stationary"), ``block_length`` (default: Politis–White), ``replicates`` (10000),
-        ``progress`` (tqdm bar; default when long), ``interval`` ("percentile" only).
+        bayes: ``prior`` ("plane" or "amplitude"), ``posterior_points``; bootstrap: ``scheme``
+        ("moving", "circular", "stationary"), ``block_length`` (default: Politis–White),
+        ``replicates`` (10000), ``progress`` (tqdm bar; default when long), ``interval``
+        ("percentile" only).
 
     Returns
     -------
     Limit
     """
-    m = _method(method)
+    m = get(method)
     cl = check_confidence_level(confidence_level)
-    c, s = float(c), float(s)
-    if not (math.isfinite(c) and math.isfinite(s)):
-        raise ValueError("c and s must be finite numbers")
-    shape = covariance_shape(cov)
-    dof = check_dof(dof)
-    unknown = set(options) - _OPTIONS[m] - _COMMON
-    if unknown:
-        raise TypeError(f"method {m!r} does not take option(s): {', '.join(sorted(unknown))}")
-    harmonic = options.pop("harmonic", None)
-    unit = options.pop("unit", "")
-    amp = math.hypot(c, s)
-    base = dict(method=m, confidence_level=cl, amplitude=amp, c=c, s=s, cov=shape.matrix, sigma=shape.sigma,
-                harmonic=None if harmonic is None else int(harmonic), unit=str(unit), dof=dof)
-    if m == "feldman-cousins":
-        from .unified import feldman_cousins
-
-        lo, up, notes = feldman_cousins(amp, shape, cl, dof)
-        return Limit(lower=lo, upper=up, notes=notes, **base)
-    if m == "neyman":
-        from .neyman import neyman
-
-        up, empty, notes = neyman(amp, shape, cl, dof)
-        return Limit(lower=None if empty else 0.0, upper=up, empty=empty, notes=notes, **base)
-    if m == "bayes":
-        from .bayes import bayes
-
-        prior = options.get("prior", "plane")
-        up, post, notes = bayes(c, s, shape, cl, prior=prior, dof=dof,
-                                posterior_points=int(options.get("posterior_points", 801)))
-        return Limit(lower=0.0, upper=up, prior=prior, notes=notes, posterior=post, **base)
-    from .bootstrap import bootstrap
-
-    if turns is None:
-        raise ValueError("the bootstrap needs the per-turn coefficients: pass turns=(N, 2) array of (c, s)")
-    gen, seed = make_rng(rng)
-    out = bootstrap(c, s, turns, cl, gen, **options)
-    bcov = np.asarray(out["cov"], dtype=float)
-    bsig = math.sqrt(0.5 * np.trace(bcov))
-    notes = out["notes"] + (f"bootstrap σ = {bsig:.4g} (supplied covariance: σ = {shape.sigma:.4g})",)
-    base.update(cov=tuple(tuple(float(v) for v in row) for row in bcov), sigma=bsig, dof=None)
-    return Limit(lower=0.0, upper=out["upper"], block_length=out["block_length"], replicates=out["replicates"],
-                 scheme=out["scheme"], seed=seed, notes=notes, **base)
-
-
-def _fit_inputs(fit, harmonic: int):
-    h = fit.harmonic(harmonic)
-    cov = np.asarray(h.cov, dtype=float)
-    turns = None
-    per_turn = getattr(fit, "per_turn", None)
-    if per_turn is not None:
-        cols = [f"c{harmonic}", f"s{harmonic}"]
-        if all(col in per_turn.columns for col in cols):
-            turns = per_turn[cols].to_numpy(dtype=float)
-    return float(h.cos), float(h.sin), cov, getattr(fit, "cov_dof", None), turns
+    est = as_estimate(c, s, cov, dof=dof, turns=turns, harmonic=harmonic, unit=unit)
+    return m(est, cl, rng=rng, **options)
 
 
 def upper_limit(fit, *, harmonic: int = 2, method: str = "feldman-cousins", confidence_level: float = 0.95,
                 rng=None, **options) -> Limit:
-    """Limit on harmonic ``harmonic`` of a scan fit (uses ``fit.harmonic(k)``, ``fit.per_turn``,
-    ``fit.cov_dof``).  ``dof`` in ``options`` overrides ``fit.cov_dof``; other options as in
-    :func:`amplitude_limit`."""
-    c, s, cov, dof, turns = _fit_inputs(fit, harmonic)
-    dof = options.pop("dof", dof)
-    if _method(method) == "bootstrap" and turns is None:
-        raise ValueError(f"the bootstrap needs per-turn coefficients, but fit.per_turn is None "
-                         f"or has no c{harmonic}/s{harmonic} columns")
-    options.setdefault("harmonic", harmonic)
-    return amplitude_limit(c, s, cov, method=method, confidence_level=confidence_level, rng=rng, dof=dof,
-                           turns=turns, **options)
+    """Limit on harmonic ``harmonic`` of a scan fit: :func:`amplitude_limit` of ``fit.harmonic(k)``
+    (its covariance, dof, per-turn series and unit); ``dof=`` in ``options`` overrides the fit's."""
+    return amplitude_limit(fit.harmonic(harmonic), method=method, confidence_level=confidence_level, rng=rng,
+                           **options)
+
+
+def scalar_limit(value, sigma=None, *, method: str = "feldman-cousins", confidence_level: float = 0.95,
+                 quantity: str = "κ", unit: str = "", nonnegative: bool = True) -> Limit:
+    """Limit on one Gaussian parameter ``value ± sigma`` (or a :class:`ScalarEstimate`): unified,
+    Neyman and Bayes with a boundary at zero when ``nonnegative``; ``"central"`` for signed ones."""
+    est = value if isinstance(value, ScalarEstimate) else ScalarEstimate(value, sigma, quantity, unit, nonnegative)
+    return get(method)(est, check_confidence_level(confidence_level))
 
 
 def _row(lim: Limit) -> dict:
@@ -165,9 +103,10 @@ def _row(lim: Limit) -> dict:
         "confidence_level": lim.confidence_level,
         "lower": np.nan if lim.lower is None else lim.lower,
         "upper": np.nan if lim.upper is None else lim.upper,
-        "upper_peak_to_peak": np.nan if lim.upper is None else lim.upper_peak_to_peak,
+        "upper_peak_to_peak": np.nan if lim.upper_peak_to_peak is None else lim.upper_peak_to_peak,
+        "unit": lim.unit,
         "empty": lim.empty,
-        "amplitude": lim.amplitude,
+        "estimate": lim.estimate,
         "sigma": lim.sigma,
         "prior": lim.prior,
         "scheme": lim.scheme,
@@ -179,67 +118,48 @@ def _row(lim: Limit) -> dict:
     }
 
 
-def limits_table(c, s, cov, *, methods=None, confidence_level: float = 0.95, rng=None, dof=None, turns=None,
-                 options=None, harmonic=None, unit: str = ""):
+def limits_table(c, s=None, cov=None, *, methods=None, confidence_level: float = 0.95, rng=None, dof=None,
+                 turns=None, options=None, harmonic=None, unit=None):
     """Every method at once: a DataFrame with one row per method (amplitude limits).
 
-    ``methods=None`` means all four when ``turns`` is given, else the three that need no
-    per-turn series.  ``options`` maps a method name to its options, e.g.
-    ``{"bayes": {"prior": "amplitude"}, "bootstrap": {"scheme": "stationary"}}``.  The
+    ``c`` is a harmonic estimate or the cosine coefficient of ``(c, s, cov)``.  ``methods=None``
+    means all four when the per-turn series is known, else the three that need none.  ``options``
+    maps a method name to its options, e.g. ``{"bayes": {"prior": "amplitude"}}``.  The
     :class:`Limit` objects are in ``table.attrs["limits"]`` (keyed by method).
     """
     import pandas as pd
 
+    est = as_estimate(c, s, cov, dof=dof, turns=turns, harmonic=harmonic, unit=unit)
     if methods is None:
-        methods = METHODS if turns is not None else METHODS[:3]
-    methods = [_method(m) for m in methods]
-    options = {_method(k): dict(v) for k, v in (options or {}).items()}
+        methods = AMPLITUDE_METHODS if est.turns is not None else AMPLITUDE_METHODS[:3]
+    methods = [method_name(m) for m in methods]
+    options = {method_name(k): dict(v) for k, v in (options or {}).items()}
     gen_or_seed = rng
     if rng is None or isinstance(rng, (int, np.integer)):
         _, seed = make_rng(rng)
         gen_or_seed = seed
-    limits = {}
-    for m in methods:
-        opts = dict(options.get(m, {}))
-        if harmonic is not None:
-            opts.setdefault("harmonic", harmonic)
-        opts.setdefault("unit", unit)
-        limits[m] = amplitude_limit(c, s, cov, method=m, confidence_level=confidence_level, rng=gen_or_seed,
-                                    dof=dof, turns=turns if m == "bootstrap" else None, **opts)
+    cl = check_confidence_level(confidence_level)
+    limits = {m: get(m)(est, cl, rng=gen_or_seed, **options.get(m, {})) for m in methods}
     table = pd.DataFrame([_row(lim) for lim in limits.values()])
     table = table.astype({"block_length": "Int64", "replicates": "Int64", "seed": "Int64", "dof": "Int64"})
     table.attrs["limits"] = limits
     return table
 
 
-def limits_table_for_fit(fit, *, harmonic: int = 2, methods=None, confidence_level: float = 0.95, rng=None,
-                         options=None, unit: str = ""):
-    """:func:`limits_table` for a scan fit (bootstrap included when ``fit.per_turn`` exists)."""
-    c, s, cov, dof, turns = _fit_inputs(fit, harmonic)
-    return limits_table(c, s, cov, methods=methods, confidence_level=confidence_level, rng=rng, dof=dof,
-                        turns=turns, options=options, harmonic=harmonic, unit=unit)
-
-
-def significance_for_fit(fit, *, harmonic: int = 2, rng=None, **options) -> Significance:
-    """:func:`detection_significance` for harmonic ``harmonic`` of a scan fit (uses ``fit.cov_dof``)."""
-    c, s, cov, dof, _ = _fit_inputs(fit, harmonic)
-    options.setdefault("dof", dof)
-    options.setdefault("harmonic", harmonic)
-    return detection_significance(c, s, cov, rng=rng, **options)
-
-
 __all__ = [
     "METHODS",
+    "AMPLITUDE_METHODS",
     "PRIORS",
     "SCHEMES",
     "Limit",
     "Posterior",
+    "ScalarEstimate",
     "Significance",
     "amplitude_limit",
     "upper_limit",
+    "scalar_limit",
     "limits_table",
-    "limits_table_for_fit",
     "detection_significance",
-    "significance_for_fit",
+    "method_name",
     "unified_gaussian_interval",
 ]

@@ -51,8 +51,8 @@ from scipy import special
 from scipy.integrate import cumulative_simpson
 
 from .amplitude_dist import n_psi_buckets, n_psi_for
-from .covariance import CovarianceShape, student_law
-from .result import Posterior
+from .covariance import CovarianceShape, covariance_shape, student_law
+from .result import Limit, Posterior, estimate_fields
 
 PRIORS = ("plane", "amplitude")
 
@@ -212,3 +212,12 @@ def bayes(c: float, s: float, shape: CovarianceShape, confidence_level: float, p
                  "amplitude prior can under-cover (≈ 0.90 at 95 % for a signal on the major axis of an "
                  "elongated covariance); both cover always at A = 0")
     return float(up[0]) * sigma, post, tuple(notes)
+
+
+def limit(est, confidence_level: float, *, rng=None, prior: str = "plane", posterior_points: int = 801) -> Limit:
+    """The credible upper limit on the amplitude of a harmonic estimate (registry signature)."""
+    shape = covariance_shape(est.cov)
+    up, post, notes = bayes(est.c, est.s, shape, confidence_level, prior=prior, dof=est.dof,
+                            posterior_points=int(posterior_points))
+    return Limit(method="bayes", confidence_level=float(confidence_level), lower=0.0, upper=up, prior=prior,
+                 cov=shape.array, sigma=shape.sigma, dof=est.dof, notes=notes, posterior=post, **estimate_fields(est))

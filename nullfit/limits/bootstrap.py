@@ -40,6 +40,9 @@ import math
 
 import numpy as np
 
+from ..core.conventions import make_rng
+from .result import Limit, estimate_fields
+
 SCHEMES = ("moving", "circular", "stationary")
 MIN_TURNS = 10
 
@@ -169,3 +172,21 @@ def bootstrap(c: float, s: float, turns, confidence_level: float, rng, *, scheme
                  "with few turns (≈ 100) it falls 1–2 points below nominal at large A")
     return dict(lower=0.0, upper=upper, cov=cov, block_length=b, replicates=replicates, scheme=scheme,
                 notes=tuple(notes), n_turns=n)
+
+
+def limit(est, confidence_level: float, *, rng=None, scheme: str = "circular", block_length=None,
+          replicates: int = 10_000, progress=None, interval: str = "percentile") -> Limit:
+    """The block-bootstrap percentile limit on the amplitude of a harmonic estimate (registry
+    signature); needs the per-turn series ``est.turns``."""
+    if est.turns is None:
+        raise ValueError("the bootstrap needs the per-turn coefficients: pass turns=(N, 2) array of (c, s), "
+                         "or an estimate from a fit with turn or block errors")
+    gen, seed = make_rng(rng)
+    out = bootstrap(est.c, est.s, est.turns, confidence_level, gen, scheme=scheme, block_length=block_length,
+                    replicates=replicates, progress=progress, interval=interval)
+    bcov = np.asarray(out["cov"], dtype=float)
+    bsig = math.sqrt(0.5 * np.trace(bcov))
+    notes = out["notes"] + (f"bootstrap σ = {bsig:.4g} (supplied covariance: σ = {est.sigma:.4g})",)
+    return Limit(method="bootstrap", confidence_level=float(confidence_level), lower=0.0, upper=out["upper"],
+                 cov=bcov, sigma=bsig, sigma_label="sqrt(trace(bootstrap cov)/2)", block_length=out["block_length"],
+                 replicates=out["replicates"], scheme=out["scheme"], seed=seed, notes=notes, **estimate_fields(est))

@@ -37,7 +37,8 @@ import math
 import numpy as np
 
 from .amplitude_dist import amplitude_cdf, n_psi_buckets
-from .covariance import CovarianceShape, student_law
+from .covariance import CovarianceShape, covariance_shape, student_law
+from .result import Limit, estimate_fields
 from .solvers import find_root
 
 PHASES = np.linspace(0.0, 0.5 * math.pi, 9)
@@ -148,3 +149,12 @@ def neyman(amplitude: float, shape: CovarianceShape, confidence_level: float, do
                      "Quote the Feldman–Cousins interval instead.")
         return None, True, tuple(notes)
     return float(up[0]) * shape.sigma, False, tuple(notes)
+
+
+def limit(est, confidence_level: float, *, rng=None) -> Limit:
+    """The one-sided Neyman limit on the amplitude of a harmonic estimate (registry signature)."""
+    shape = covariance_shape(est.cov)
+    up, empty, notes = neyman(est.amplitude, shape, confidence_level, est.dof)
+    return Limit(method="neyman", confidence_level=float(confidence_level), lower=None if empty else 0.0,
+                 upper=up, empty=empty, cov=shape.array, sigma=shape.sigma, dof=est.dof, notes=notes,
+                 **estimate_fields(est))

@@ -1,4 +1,10 @@
-"""The :class:`Limit` result (and the Bayesian :class:`Posterior` it may carry)."""
+"""The :class:`Limit` result (and the Bayesian :class:`Posterior` it may carry).
+
+Every limit method returns a `Limit`, whatever it bounds: the amplitude ``A = hypot(c, s)`` of a
+harmonic (``quantity="amplitude"``) or a one-dimensional parameter such as the scale κ of a sky
+template (``quantity`` names it).  ``cov`` is always a 2-D array: the 2×2 covariance of
+``(c, s)``, or the 1×1 variance of a scalar estimate.
+"""
 
 from __future__ import annotations
 
@@ -7,14 +13,15 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..conventions import amplitude_phase, peak_to_peak
-from ..summary import Described, Summary
+from ..core.conventions import amplitude_phase, peak_to_peak
+from ..core.render import Described, Summary, fmt
 
 METHOD_TITLES = {
     "feldman-cousins": "Unified (Feldman–Cousins) interval",
     "neyman": "Classical one-sided Neyman upper limit",
     "bayes": "Bayesian credible upper limit",
     "bootstrap": "Block-bootstrap percentile upper limit",
+    "central": "Central (two-sided) interval",
 }
 
 
@@ -42,25 +49,29 @@ def _f(x):
     return None if x is None or (isinstance(x, float) and math.isnan(x)) else float(x)
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class Limit(Described):
-    """A confidence (or credible) statement on a harmonic amplitude ``A = hypot(c, s)``.
+    """A confidence (or credible) statement on a harmonic amplitude or on a scalar parameter.
 
-    ``lower``/``upper`` are *amplitudes* (not peak-to-peak; see :attr:`upper_peak_to_peak`).
-    One-sided methods report ``lower = 0``.  An empty Neyman set has ``empty=True`` and
-    ``lower = upper = None``.  ``cov`` is the covariance of ``(c, s)`` that was supplied (for
-    the bootstrap: the bootstrap covariance of the replicates); ``sigma = sqrt(trace/2)``.
+    ``lower``/``upper`` bound ``quantity``; for an amplitude they are *amplitudes* (not
+    peak-to-peak; see :attr:`upper_peak_to_peak`).  One-sided methods report ``lower = 0``.  An
+    empty Neyman set has ``empty=True`` and ``lower = upper = None`` (``notes`` say why).
+    ``estimate`` is the observed value (``Â`` or the scalar).  ``cov`` is the covariance the
+    method used (for the bootstrap, that of its replicates); ``sigma`` is the one σ the method
+    worked in, named by ``sigma_label``.
     """
 
     method: str
     confidence_level: float
     lower: float | None
     upper: float | None
-    amplitude: float
-    c: float
-    s: float
-    cov: tuple[tuple[float, float], tuple[float, float]]
-    sigma: float
+    estimate: float
+    cov: np.ndarray = field(repr=False)
+    sigma: float = math.nan
+    sigma_label: str = "sqrt(trace(cov)/2)"
+    quantity: str = "amplitude"
+    c: float | None = None
+    s: float | None = None
     empty: bool = False
     harmonic: int | None = None
     unit: str = ""
@@ -71,41 +82,60 @@ class Limit(Described):
     seed: int | None = None
     dof: int | None = None
     notes: tuple[str, ...] = ()
-    posterior: Posterior | None = field(default=None, repr=False, compare=False)
+    posterior: Posterior | None = field(default=None, repr=False)
+
+    def __post_init__(self):
+        cov = np.atleast_2d(np.array(self.cov, dtype=float))
+        cov.setflags(write=False)
+        object.__setattr__(self, "cov", cov)
+        object.__setattr__(self, "notes", tuple(self.notes))
+
+    @property
+    def is_amplitude(self) -> bool:
+        return self.quantity == "amplitude"
 
     @property
     def upper_peak_to_peak(self) -> float | None:
-        """Upper limit on the peak-to-peak shift between orientations 90° apart (``2·upper``)."""
-        return None if self.upper is None else peak_to_peak(self.upper)
-
-    @property
-    def two_sided(self) -> bool:
-        """True when the interval excludes zero (``lower > 0``)."""
-        return self.lower is not None and self.lower > 0
+        """Upper limit on the peak-to-peak shift between orientations 90° apart (``2·upper``);
+        ``None`` for scalar parameters."""
+        if self.upper is None or not self.is_amplitude:
+            return None
+        return peak_to_peak(self.upper)
 
     @property
     def phase_deg(self) -> float | None:
         """Phase of the estimate in degrees of table angle, ``[0, 360/k)`` (needs ``harmonic``)."""
-        if self.harmonic is None:
+        if self.harmonic is None or self.c is None:
             return None
         return amplitude_phase(self.c, self.s, self.harmonic)[1]
+
+    @property
+    def interval_text(self) -> str:
+        """The statement in one line, e.g. ``"< 2.1e-03 fringe (amplitude)"``."""
+        u = f" {self.unit}" if self.unit else ""
+        if self.empty:
+            return "empty set (" + (self.notes[-1] if self.notes else "no value is compatible at this CL") + ")"
+        if self.lower not in (None, 0.0) or self.method == "central":
+            return f"[{fmt(self.lower)}, {fmt(self.upper)}]{u}"
+        return f"< {fmt(self.upper)}{u}"
 
     def to_dict(self) -> dict:
         return {
             "method": self.method,
             "confidence_level": self.confidence_level,
-            "quantity": "amplitude",
+            "quantity": self.quantity,
             "lower": _f(self.lower),
             "upper": _f(self.upper),
             "upper_peak_to_peak": _f(self.upper_peak_to_peak),
             "empty": bool(self.empty),
-            "amplitude": self.amplitude,
+            "estimate": self.estimate,
             "c": self.c,
             "s": self.s,
             "harmonic": self.harmonic,
             "unit": self.unit,
-            "cov": [list(r) for r in self.cov],
+            "cov": self.cov.tolist(),
             "sigma": self.sigma,
+            "sigma_label": self.sigma_label,
             "dof": self.dof,
             "prior": self.prior,
             "block_length": self.block_length,
@@ -117,24 +147,28 @@ class Limit(Described):
 
     def summary(self) -> Summary:
         k = f"{self.harmonic}θ " if self.harmonic else ""
-        title = f"{METHOD_TITLES.get(self.method, self.method)} on the {k}amplitude ({self.confidence_level:.4g} CL)"
+        what = f"the {k}amplitude" if self.is_amplitude else self.quantity
+        title = f"{METHOD_TITLES.get(self.method, self.method)} on {what} ({self.confidence_level:.4g} CL)"
         u = self.unit
+        obs = "observed amplitude Â" if self.is_amplitude else f"estimate of {self.quantity}"
         rows = [
             ("method", self.method, ""),
             ("confidence level", self.confidence_level, ""),
-            ("observed amplitude Â", self.amplitude, u),
-            ("sigma = sqrt(trace(cov)/2)", self.sigma, u),
+            (obs, self.estimate, u),
+            (f"σ used: {self.sigma_label}", self.sigma, u),
         ]
-        if self.harmonic:
+        if self.phase_deg is not None:
             rows.append(("observed phase", self.phase_deg, "deg"))
         if self.empty:
-            rows.append(("interval", "empty (no amplitude ≥ 0 is compatible at this CL)", ""))
-        else:
+            rows.append(("interval", "empty: " + (self.notes[-1] if self.notes else "see notes"), ""))
+        elif self.is_amplitude:
             rows += [
                 ("lower (amplitude)", self.lower, u),
                 ("upper (amplitude)", self.upper, u),
                 ("upper (peak-to-peak = 2A)", self.upper_peak_to_peak, u),
             ]
+        else:
+            rows += [("lower", self.lower, u), ("upper", self.upper, u)]
         if self.dof is not None:
             rows.append(("covariance dof (turns − 1)", self.dof, ""))
         if self.prior is not None:
@@ -148,3 +182,12 @@ class Limit(Described):
         if self.seed is not None:
             rows.append(("seed", self.seed, ""))
         return Summary(title=title, rows=tuple(rows), notes=self.notes)
+
+    def __repr__(self) -> str:
+        q = "A" + (str(self.harmonic) if self.harmonic else "") if self.is_amplitude else self.quantity
+        return f"Limit({self.method}, {self.confidence_level:.4g} CL: {q} {self.interval_text})"
+
+
+def estimate_fields(est) -> dict:
+    """The `Limit` fields every amplitude method copies from a harmonic estimate."""
+    return dict(quantity="amplitude", estimate=est.amplitude, c=est.c, s=est.s, harmonic=est.k, unit=est.unit)

@@ -18,20 +18,21 @@ Statistic: the observed amplitude ``Â``; ``p = P(Â ≥ Â_obs | A = 0)``.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 from scipy import stats
 
-from ..conventions import make_rng
-from ..summary import Described, Summary
+from ..core.conventions import make_rng
+from ..core.render import Described, Summary
 from .amplitude_dist import aniso_sf
-from .covariance import check_dof, covariance_shape
+from .covariance import covariance_shape
+from .inputs import as_estimate
 
 METHODS = ("auto", "rayleigh", "integration", "simulation", "hotelling")
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class Significance(Described):
     """p-value of an observed amplitude under the no-signal hypothesis ``A = 0``."""
 
@@ -41,7 +42,7 @@ class Significance(Described):
     sigma: float
     method: str
     statistic: str
-    cov: tuple[tuple[float, float], tuple[float, float]]
+    cov: np.ndarray = field(repr=False)
     dof: int | None = None
     n_sim: int | None = None
     seed: int | None = None
@@ -57,7 +58,7 @@ class Significance(Described):
             "sigma": self.sigma,
             "method": self.method,
             "statistic": self.statistic,
-            "cov": [list(r) for r in self.cov],
+            "cov": np.asarray(self.cov).tolist(),
             "dof": self.dof,
             "n_sim": self.n_sim,
             "seed": self.seed,
@@ -94,16 +95,17 @@ def _simulate(s1, s2, a, n_sim, rng):
     return hits / n_sim
 
 
-def detection_significance(c, s, cov, *, rng=None, method: str = "auto", dof=None,
-                           n_sim: int = 200_000, harmonic=None, unit: str = "") -> Significance:
-    """p-value of the amplitude ``hypot(c, s)`` under ``A = 0`` (see module docstring)."""
+def detection_significance(c, s=None, cov=None, *, rng=None, method: str = "auto", dof=None,
+                           n_sim: int = 200_000, harmonic=None, unit=None) -> Significance:
+    """p-value of the amplitude ``hypot(c, s)`` under ``A = 0`` (see module docstring).
+
+    ``c`` is a harmonic estimate (``fit.harmonic(2)``; its dof and unit are used) or the cosine
+    coefficient of a bare ``(c, s, cov)``."""
     if method not in METHODS:
         raise ValueError(f"method must be one of {', '.join(METHODS)}, not {method!r}")
-    c, s = float(c), float(s)
-    if not (math.isfinite(c) and math.isfinite(s)):
-        raise ValueError("c and s must be finite")
-    shape = covariance_shape(cov)
-    dof = check_dof(dof)
+    est = as_estimate(c, s, cov, dof=dof, harmonic=harmonic, unit=unit)
+    c, s, dof, harmonic, unit = est.c, est.s, est.dof, est.k, est.unit
+    shape = covariance_shape(est.cov)
     amp = math.hypot(c, s)
     if method == "auto":
         method = "hotelling" if dof is not None else ("rayleigh" if shape.isotropic else "integration")
@@ -140,5 +142,5 @@ def detection_significance(c, s, cov, *, rng=None, method: str = "auto", dof=Non
         notes.append("covariance treated as exact although dof was given; method='hotelling' accounts for it")
     z = float(stats.norm.isf(p)) if p > 0 else math.inf
     return Significance(p_value=p, z=z, amplitude=amp, sigma=shape.sigma, method=method, statistic=statistic,
-                        cov=shape.matrix, dof=dof, n_sim=sims, seed=seed, harmonic=harmonic, unit=unit,
+                        cov=shape.array, dof=dof, n_sim=sims, seed=seed, harmonic=harmonic, unit=unit,
                         notes=tuple(notes))

@@ -46,11 +46,16 @@ Coverage with a known covariance (measured, 4000 runs per case, ρ = 0.5): on th
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 from scipy import special
 
+from ..core.conventions import check_confidence_level
+
 from . import belt
 from .covariance import CovarianceShape, covariance_shape, hotelling_scale, with_min_rho
+from .result import Limit, estimate_fields
 
 #: Shapes for which belts are built and cached (``ρ = 1`` is the Rice family).
 RHO_GRID = np.round(np.arange(0.2, 1.0 + 1e-9, 0.05), 2)
@@ -79,7 +84,7 @@ def rice_interval(x, confidence_level: float):
     return belt.invert(("rice",), float(confidence_level), np.atleast_1d(np.asarray(x, dtype=float)))
 
 
-def _grid_key(rho: float):
+def grid_key(rho: float):
     return ("rice",) if rho >= 1.0 - 1e-12 else ("aniso", float(rho))
 
 
@@ -96,17 +101,27 @@ def shape_interval(x, rho: float, confidence_level: float):
     rho = float(rho)
     if rho < MIN_RHO - 1e-12:
         raise ValueError(f"shape_interval needs rho >= {MIN_RHO}; regularise the covariance first")
-    rho = max(rho, MIN_RHO)
+    lo = up = 0.0
+    for key, w in rho_weights(rho):
+        lo_k, up_k = belt.invert(key, cl, x)
+        lo, up = lo + w * lo_k, up + w * up_k
+    return lo, up
+
+
+def rho_weights(rho: float) -> list[tuple[tuple, float]]:
+    """The cached belts that serve shape ``ρ`` and their linear-interpolation weights:
+    ``[(key, 1.0)]`` on the grid (or isotropic), else the two neighbouring grid shapes."""
+    if rho >= 0.999:
+        return [(("rice",), 1.0)]
+    rho = max(float(rho), MIN_RHO)
     j = int(np.clip(np.searchsorted(RHO_GRID, rho, side="right") - 1, 0, RHO_GRID.size - 2))
     r0, r1 = float(RHO_GRID[j]), float(RHO_GRID[j + 1])
     if abs(rho - r0) < 1e-9:
-        return belt.invert(_grid_key(r0), cl, x)
+        return [(grid_key(r0), 1.0)]
     if abs(rho - r1) < 1e-9:
-        return belt.invert(_grid_key(r1), cl, x)
+        return [(grid_key(r1), 1.0)]
     w = (rho - r0) / (r1 - r0)
-    lo0, up0 = belt.invert(_grid_key(r0), cl, x)
-    lo1, up1 = belt.invert(_grid_key(r1), cl, x)
-    return (1 - w) * lo0 + w * lo1, (1 - w) * up0 + w * up1
+    return [(grid_key(r0), 1.0 - w), (grid_key(r1), w)]
 
 
 def _normal_regime(x, s1, s2, cl):
@@ -159,6 +174,60 @@ def feldman_cousins(amplitude: float, shape: CovarianceShape, confidence_level: 
     return float(lo[0]) * sigma, float(up[0]) * sigma, tuple(notes)
 
 
+def limit(est, confidence_level: float, *, rng=None) -> Limit:
+    """The unified interval on the amplitude of a harmonic estimate (the registry's signature;
+    ``rng`` is unused: the construction is exact)."""
+    shape = covariance_shape(est.cov)
+    lo, up, notes = feldman_cousins(est.amplitude, shape, confidence_level, est.dof)
+    sigma, label = shape.sigma, "sqrt(trace(cov)/2)"
+    if est.dof is not None:
+        sigma = shape.sigma_major * float(np.sqrt(hotelling_scale(est.dof, confidence_level)))
+        label = "isotropic Hotelling bound sqrt(c·λ_max(cov))"
+    return Limit(method="feldman-cousins", confidence_level=float(confidence_level), lower=lo, upper=up,
+                 cov=shape.array, sigma=sigma, sigma_label=label, dof=est.dof, notes=notes, **estimate_fields(est))
+
+
+def belt_curves(cov, confidence_level: float, dof=None, amplitude_max: float | None = None, *, n_sigma=None,
+                amplitude_min: float = 0.0):
+    """The unified acceptance belt used by :func:`nullfit.limits.unified.feldman_cousins`.
+
+    Returns ``(A, x1, x2, sigma, description)``: for each true amplitude ``A`` the acceptance
+    interval ``[x1, x2]`` of the observed amplitude (same units as ``cov``).  The belt is taken
+    from the cached tiles of :mod:`nullfit.limits.belt` for the covariance shape the interval
+    uses (Hotelling-inflated isotropic bound with ``dof``; otherwise the shape, rounded up to
+    the smallest cached ``σ_minor/σ_major``, interpolated linearly between the two cached shapes
+    around it, as the limits are).
+    """
+    cl = check_confidence_level(confidence_level)
+    shape = covariance_shape(cov)
+    if dof is not None:
+        shape = covariance_shape(np.eye(2) * (hotelling_scale(int(dof), cl) * shape.sigma_major ** 2))
+        desc = f"isotropic Hotelling bound ({dof} dof)"
+    else:
+        shape = with_min_rho(shape, MIN_RHO)
+        desc = "isotropic covariance (Rice law)" if shape.isotropic else f"σ_minor/σ_major = {shape.rho:.2f}"
+    sigma = shape.sigma
+    pairs = rho_weights(1.0 if shape.isotropic else shape.rho)
+    keys, weights = [k for k, _ in pairs], [w for _, w in pairs]
+    top = (amplitude_max / sigma) if amplitude_max is not None else (n_sigma or 6.0)
+    bottom = max(0.0, float(amplitude_min) / sigma)
+    i0 = int(math.floor(bottom / belt.TILE_WIDTH))
+    i1 = max(i0 + 1, int(math.ceil(top / belt.TILE_WIDTH)))
+    base = None
+    x1 = x2 = 0.0
+    for key, wt in zip(keys, weights):
+        tiles = [belt.tile(key, cl, i) for i in range(i0, i1)]
+        th = np.concatenate([t.theta if i == 0 else t.theta[1:] for i, t in enumerate(tiles)])
+        a1 = np.concatenate([t.x1 if i == 0 else t.x1[1:] for i, t in enumerate(tiles)])
+        a2 = np.concatenate([t.x2 if i == 0 else t.x2[1:] for i, t in enumerate(tiles)])
+        if base is None:
+            base = th
+        x1 = x1 + wt * np.interp(base, th, a1)
+        x2 = x2 + wt * np.interp(base, th, a2)
+    keep = (base <= top + 1e-12) & (base >= bottom - 1e-12)
+    return base[keep] * sigma, x1[keep] * sigma, x2[keep] * sigma, sigma, desc
+
+
 def intervals_estimated_cov(amplitudes, covs, dof: int, confidence_level: float):
     """Vectorised few-turn intervals: one estimate and one estimated 2×2 covariance per row.
 
@@ -183,6 +252,7 @@ def _interval_many(amplitudes, shape: CovarianceShape, confidence_level: float):
 
 
 __all__ = [
+    "belt_curves",
     "feldman_cousins",
     "rice_interval",
     "shape_interval",

@@ -1,0 +1,267 @@
+"""One run analysed end to end: fit, limits, detection significance, expected signal, ratio.
+
+This is the job the command line, the demo and the report share; it adds no statistics of its
+own, only the bookkeeping that ties the stages together (which limit feeds the ratio, which seed
+each random step used, which apparatus and hypothesis were assumed).
+
+The ratio *expected / bound* compares like with like: the expected **coherent amplitude** of the
+2θ term (what a fit of constant ``(c₂, s₂)`` measures, see :mod:`nullfit.expected`) over the upper
+limit on the **amplitude** of the fitted 2θ term, from the first limit method listed.
+The same ratio follows from the two peak-to-peak values.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any, Mapping
+
+import numpy as np
+
+from ..core.conventions import check_confidence_level, make_rng, peak_to_peak
+from ..core.errors import AnalysisError
+from ..core.render import Described, Summary
+
+DEFAULT_LIMITS = ("feldman-cousins", "neyman", "bayes", "bootstrap")
+
+
+def parse_harmonics(text) -> tuple[int, ...]:
+    if isinstance(text, str):
+        try:
+            ks = tuple(int(v) for v in text.replace(" ", "").split(",") if v)
+        except ValueError:
+            raise ValueError(f"harmonics must be a comma list of positive integers, not {text!r}") from None
+    else:
+        ks = tuple(int(v) for v in text)
+    if not ks or any(k < 1 for k in ks) or len(set(ks)) != len(ks):
+        raise ValueError(f"harmonics must be distinct positive integers, not {text!r}")
+    return ks
+
+
+def parse_methods(text) -> tuple[str, ...]:
+    """Limit methods from a comma list (or a sequence); ``"all"`` means every amplitude method."""
+    from ..limits.registry import AMPLITUDE_METHODS, method_name
+
+    if text is None:
+        return ()
+    items = text.split(",") if isinstance(text, str) else list(text)
+    items = [m.strip() for m in items if m.strip()]
+    if items == ["all"]:
+        return AMPLITUDE_METHODS
+    return tuple(dict.fromkeys(method_name(m) for m in items))
+
+
+def child_seeds(seed: int, n: int) -> list[int]:
+    """``n`` independent integer seeds derived from one recorded master seed."""
+    return [int(s.generate_state(1, dtype=np.uint64)[0] >> 1) for s in np.random.SeedSequence(seed).spawn(n)]
+
+
+@dataclass(frozen=True, eq=False)
+class RunAnalysis(Described):
+    """A scan taken through the whole job: `ScanFit`, `Limit` per method, significance and
+    (when a hypothesis is given) the `ExpectedSignal` and the expected/bound ratio."""
+
+    scan: Any = field(repr=False)
+    fit: Any = field(repr=False)
+    harmonic: int
+    limits: Mapping[str, Any]
+    significance: Any
+    expected: Any
+    apparatus: Any
+    seed: int | None
+    settings: Mapping[str, Any]
+
+    # ----------------------------------------------------------------- derived
+    @property
+    def run_id(self) -> str:
+        return self.scan.run_id
+
+    @property
+    def primary_limit(self):
+        """The limit that feeds the ratio: the first method listed."""
+        return next(iter(self.limits.values())) if self.limits else None
+
+    @property
+    def ratio(self) -> float | None:
+        lim, exp = self.primary_limit, self.expected
+        if lim is None or exp is None or lim.upper is None:
+            return None
+        return float(exp.ratio(lim.upper))
+
+    @property
+    def speed_bound_m_s(self) -> float | None:
+        lim, exp = self.primary_limit, self.expected
+        if lim is None or exp is None or lim.upper is None:
+            return None
+        return float(exp.speed_bound(lim.upper))
+
+    # ----------------------------------------------------------------- rendering
+    def to_dict(self) -> dict:
+        fd = self.fit.to_dict()
+        d: dict[str, Any] = {
+            "source": self.scan.source,
+            "run_id": self.run_id,
+            "unit": self.scan.unit,
+            "n_samples": int(self.fit.n_samples),
+            "n_turns": int(self.fit.n_turns),
+            "dropped_rows": int(self.fit.dropped_rows),
+            "dropped": {"scan": dict(self.scan.dropped), "partial_turn_rows": int(self.fit.excluded_rows)},
+            "drift": self.fit.drift,
+            "errors": self.fit.errors,
+            "harmonics": fd["harmonics"],
+            "fit": fd,
+            "seed": self.seed,
+            "settings": dict(self.settings),
+        }
+        if self.limits:
+            d["limits"] = {m: lim.to_dict() for m, lim in self.limits.items()}
+        if self.significance is not None:
+            d["significance"] = self.significance.to_dict()
+        if self.expected is not None:
+            d["expected"] = {
+                "amplitude": self.expected.amplitude,
+                "peak_to_peak": self.expected.peak_to_peak,
+                "mean_amplitude": self.expected.mean_amplitude,
+                "ratio": self.ratio,
+                "ratio_method": self.primary_limit.method if self.primary_limit is not None else None,
+                "speed_bound_m_s": self.speed_bound_m_s,
+                "detail": self.expected.to_dict(),
+            }
+        return d
+
+    def limits_frame(self):
+        """The limits side by side, one row per method (amplitude and peak-to-peak, in ``unit``)."""
+        import pandas as pd
+
+        rows = []
+        for m, lim in self.limits.items():
+            rows.append({
+                "method": m,
+                "confidence_level": lim.confidence_level,
+                "lower": lim.lower,
+                "upper (amplitude)": lim.upper,
+                "upper (peak-to-peak)": None if lim.upper is None else peak_to_peak(lim.upper),
+                "unit": self.scan.unit,
+                "empty": bool(getattr(lim, "empty", False)),
+                "settings": _limit_settings(lim),
+            })
+        return pd.DataFrame(rows)
+
+    def summary(self) -> Summary:
+        unit = self.scan.unit
+        h = self.fit.harmonic(self.harmonic)
+        k = self.harmonic
+        rows = [
+            ("run", self.run_id, ""),
+            ("samples / turns", f"{self.fit.n_samples} / {self.fit.n_turns}", ""),
+            ("dropped rows", self.fit.dropped_rows, ""),
+            ("drift model", self.fit.drift, ""),
+            ("errors", self.fit.errors_description, ""),
+            (f"c{k}", h.c, unit),
+            (f"s{k}", h.s, unit),
+            (f"σ(c{k}) / σ(s{k})", f"{h.sigma_c:.3g} / {h.sigma_s:.3g}", unit),
+            (f"observed amplitude A{k} (biased near 0)", h.amplitude, unit),
+            (f"phase φ{k}", h.phase_deg, "deg"),
+        ]
+        sections = []
+        if self.limits:
+            lrows = []
+            for m, lim in self.limits.items():
+                if getattr(lim, "empty", False):
+                    val = "empty (see note)"
+                elif lim.lower not in (None, 0.0) and m == "feldman-cousins":
+                    val = f"[{lim.lower:.4g}, {lim.upper:.4g}] (two-sided)"
+                else:
+                    val = f"< {lim.upper:.4g}   (peak-to-peak < {peak_to_peak(lim.upper):.4g})"
+                lrows.append((f"{m} {lim.confidence_level:.0%}", val, f"{unit} amplitude"))
+            notes = ()
+            if self.significance is not None:
+                lrows.append(("p-value of A = 0", self.significance.p_value, ""))
+            sections.append(Summary(f"Limits on the {k}θ amplitude", tuple(lrows), notes))
+        if self.expected is not None:
+            e = self.expected
+            erows = [
+                ("hypothesis", e.hypothesis_label, ""),
+                ("expected amplitude (phase-coherent)", e.amplitude, unit),
+                ("expected peak-to-peak (phase-coherent)", e.peak_to_peak, unit),
+                ("mean instantaneous amplitude", e.mean_amplitude, unit),
+            ]
+            if self.ratio is not None:
+                erows.append((f"ratio expected / bound ({self.primary_limit.method})", self.ratio, ""))
+                erows.append(("speed bound", self.speed_bound_m_s, "m/s"))
+            sections.append(Summary("Expected signal", tuple(erows)))
+        notes = tuple(self.fit.notes) if hasattr(self.fit, "notes") else ()
+        if self.seed is not None:
+            notes += (f"random seed {self.seed}",)
+        return Summary(f"nullfit run {self.run_id}", tuple(rows), notes, tuple(sections))
+
+
+def _limit_settings(lim) -> str:
+    parts = []
+    if getattr(lim, "prior", None):
+        parts.append(f"prior={lim.prior}")
+    if getattr(lim, "block_length", None):
+        parts.append(f"{lim.scheme} blocks of {lim.block_length} turns, {lim.replicates} replicates, seed {lim.seed}")
+    if getattr(lim, "dof", None):
+        parts.append(f"covariance from {lim.dof} dof")
+    return "; ".join(parts)
+
+
+def analyse(scan, *, harmonics=(1, 2), harmonic: int = 2, drift="per-turn", errors="turns",
+            limits=DEFAULT_LIMITS, confidence_level: float = 0.95, rng=None, apparatus=None, site=None,
+            velocity=None, speed_m_s: float | None = None, bootstrap_replicates: int = 10_000,
+            progress: bool | None = None) -> RunAnalysis:
+    """Fit ``scan``, put limits on harmonic ``harmonic`` by each method in ``limits``, and, when a
+    hypothesis is given (``speed_m_s`` and/or ``velocity``), compute the expected signal and the
+    expected/bound ratio.  ``drift`` and ``errors`` are passed to :func:`nullfit.fit_scan`
+    (which takes ``"poly:3"``, ``"spline:2"``, ``"hac:12"``, ``"blocks:5"``).  ``rng`` seeds every random step; the seed is
+    recorded (the bootstrap gets a child seed, also recorded in its `Limit`)."""
+    from ..fitting.fit import fit_scan
+    from ..limits import amplitude_limit, detection_significance
+
+    cl = check_confidence_level(confidence_level)
+    ks = parse_harmonics(harmonics)
+    if harmonic not in ks:
+        raise ValueError(f"the limit harmonic {harmonic} is not among the fitted harmonics {ks}")
+    methods = parse_methods(limits) if limits else ()
+    hypothesis = speed_m_s is not None or velocity is not None
+    if hypothesis and not methods:
+        methods = ("feldman-cousins",)
+    if isinstance(rng, np.random.Generator):
+        seed = int(rng.integers(2**62))
+    else:
+        _, seed = make_rng(rng)
+    s_boot, s_sig = child_seeds(seed, 2)
+
+    fit = fit_scan(scan, harmonics=ks, drift=drift, errors=errors)
+    est = fit.harmonic(harmonic)
+    if "bootstrap" in methods and est.turns is None:
+        raise AnalysisError("the bootstrap needs per-turn coefficients: use errors='turns' or errors='blocks:B'")
+    out = {}
+    for m in methods:
+        opts: dict[str, Any] = {}
+        if m == "bootstrap":
+            opts["replicates"] = bootstrap_replicates
+            if progress is not None:
+                opts["progress"] = progress
+        out[m] = amplitude_limit(est, method=m, confidence_level=cl, rng=s_boot if m == "bootstrap" else None,
+                                 **opts)
+    sig = detection_significance(est, rng=s_sig) if methods else None
+
+    expected = app = None
+    if hypothesis:
+        from ..hypothesis.apparatus import Apparatus
+        from ..hypothesis.expected import expected_for_scan
+
+        app = apparatus if apparatus is not None else (
+            Apparatus.from_mapping(scan.meta.apparatus) if scan.meta.apparatus else None)
+        if app is None:
+            raise AnalysisError(f"{scan.source}: the expected signal needs the apparatus (arm_length_m and "
+                                "wavelength_m): pass apparatus=Apparatus(...) or give an [apparatus] table in "
+                                "the manifest")
+        expected = expected_for_scan(scan, velocity, apparatus=app, site=site, speed_m_s=speed_m_s)
+    settings = {"harmonics": list(ks), "limit_harmonic": harmonic, "drift": fit.drift, "errors": fit.errors,
+                "confidence_level": cl, "limits": list(methods),
+                "hypothesis": None if expected is None else expected.hypothesis_label,
+                "speed_m_s": speed_m_s}
+    return RunAnalysis(scan=scan, fit=fit, harmonic=harmonic, limits=out, significance=sig, expected=expected,
+                       apparatus=app, seed=seed, settings=settings)

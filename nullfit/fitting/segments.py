@@ -1,0 +1,78 @@
+"""Turns as contiguous row ranges ("segments") of a scan, and sums over them."""
+
+from __future__ import annotations
+
+import functools
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..core.errors import AnalysisError, where
+
+
+@dataclass(frozen=True)
+class Segments:
+    """Contiguous row ranges of the turns used by a fit (indices into the scan's arrays)."""
+
+    start: np.ndarray  # int64, first row of each turn
+    stop: np.ndarray  # int64, one past the last row
+    turn: np.ndarray  # turn number (scan.turn value) of each segment
+    complete: np.ndarray  # bool
+
+    @functools.cached_property
+    def length(self) -> np.ndarray:
+        return self.stop - self.start
+
+    @property
+    def n(self) -> int:
+        return int(self.start.size)
+
+    @property
+    def n_rows(self) -> int:
+        return int(self.length.sum())
+
+    def take(self, keep: np.ndarray) -> "Segments":
+        return Segments(self.start[keep], self.stop[keep], self.turn[keep], self.complete[keep])
+
+
+def turn_segments(scan) -> Segments:
+    """The row range of every turn of ``scan`` (turns are contiguous and numbered in time order)."""
+    tr = np.asarray(scan.turn)
+    n = tr.size
+    if n == 0:
+        z = np.zeros(0, np.int64)
+        return Segments(z, z, z, np.zeros(0, bool))
+    brk = np.flatnonzero(tr[1:] != tr[:-1]) + 1
+    start = np.r_[0, brk].astype(np.int64)
+    stop = np.r_[brk, n].astype(np.int64)
+    labels = tr[start]
+    if np.any(np.diff(labels) <= 0):
+        raise AnalysisError(f"{where(scan.source)}: turn numbers are not contiguous and increasing in time")
+    return Segments(start, stop, labels.astype(np.int64), np.asarray(scan.turn_complete)[labels])
+
+
+def local_time(t, seg_index, t_mid, half_span) -> np.ndarray:
+    """Time within each turn scaled to [−1, 1]: ``(t − t_mid) / half_span`` of its turn."""
+    return (np.asarray(t, dtype=float) - t_mid[seg_index]) / half_span[seg_index]
+
+
+def segment_sums(x: np.ndarray, start: np.ndarray, stop: np.ndarray) -> np.ndarray:
+    """Sums of ``x[start_i:stop_i]`` for every segment (segments sorted, non-overlapping)."""
+    if start.size == 0:
+        return np.zeros(0)
+    idx = np.empty(2 * start.size, np.int64)
+    idx[0::2] = start
+    idx[1::2] = stop
+    if idx[-1] >= x.size:
+        idx = idx[:-1]
+    return np.add.reduceat(x, idx)[0::2]
+
+
+def chunk_bounds(seg: Segments, chunk_rows: int) -> np.ndarray:
+    """Segment indices where chunks start (plus the end): whole turns, contiguous rows."""
+    if seg.n == 0:
+        return np.zeros(1, np.int64)
+    before = np.cumsum(seg.length) - seg.length
+    gap = np.r_[0, np.cumsum(seg.start[1:] != seg.stop[:-1])]
+    key = gap * (1 << 40) + before // chunk_rows
+    return np.r_[0, np.flatnonzero(key[1:] != key[:-1]) + 1, seg.n].astype(np.int64)
