@@ -37,7 +37,7 @@ import numpy as np
 
 
 def make_scan(n: int, per_turn: int, seed: int = 1):
-    from nullfit.scan import Scan
+    from nullfit.reading.scan import Scan
 
     rng = np.random.default_rng(seed)
     t = np.arange(n) * 0.25
@@ -89,9 +89,9 @@ def rel(a, b):
 
 
 def bench_size(n: int, per_turn: int, repeat: int, with_statsmodels: bool):
-    from nullfit.design import dense_design
-    from nullfit.fit import fit_scan
-    from nullfit.turns import demodulate
+    from nullfit.fitting.dense import dense_design
+    from nullfit.fitting.fit import fit_scan
+    from nullfit.fitting.demodulate import demodulate
 
     print(f"\n=== n = {n:.0e} samples, {per_turn} readings per turn ===")
     scan = make_scan(n, per_turn)

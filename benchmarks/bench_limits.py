@@ -43,7 +43,7 @@ def _ar1(rng, n, phi=0.5):
 def bench_unified(rows):
     from nullfit.limits import amplitude_limit
     from nullfit.limits.covariance import covariance_shape
-    from nullfit.limits.unified import _interval_many
+    from nullfit.limits.unified import intervals_many
 
     cases = [
         ("isotropic (Rice belt)", np.eye(2) * 1e-4),
@@ -64,7 +64,7 @@ def bench_unified(rows):
             per.append(time.perf_counter() - t0)
         shape = covariance_shape(cov)
         many = rng.uniform(0, 5, 10_000) * sig
-        vec, _ = _clock(lambda: _interval_many(many, shape, 0.95), repeat=5)
+        vec, _ = _clock(lambda: intervals_many(many, shape, 0.95), repeat=5)
         rows.append((f"unified limit, {label}: first call (builds belt)", first, None))
         rows.append((f"unified limit, {label}: cached, amplitude_limit (median)", statistics.median(per), None))
         rows.append((f"unified limit, {label}: cached, vectorised, per limit (10^4)", vec / many.size, None))

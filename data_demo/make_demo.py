@@ -1,7 +1,7 @@
 #!/usr/bin/env python
 """Make nullfit's demo data: INVENTED scenario, SYNTHETIC scans (nothing here was measured).
 
-Every scan is drawn by :func:`nullfit.simulate.simulate_frame` with a fixed seed and written as a
+Every scan is drawn by :func:`nullfit.simulation.scans.simulate_frame` with a fixed seed and written as a
 CSV log plus a TOML manifest (docs/manifest.md) of the same stem; ``truth.json`` records what was
 put in.  The lab, site, apparatus and dates are invented (see data_demo/README.md).
 
@@ -29,12 +29,14 @@ from typing import Any
 HERE = Path(__file__).resolve().parent
 
 try:  # run from a checkout without installing: the package sits beside data_demo/
-    from nullfit.simulate import SIGNAL_COLUMN, TIME_COLUMN, Drift, simulate_frame
+    from nullfit.simulation.models import Drift
+    from nullfit.simulation.scans import SIGNAL_COLUMN, TIME_COLUMN, simulate_frame
 except ImportError:  # pragma: no cover - depends on how the script is started
     sys.path.insert(0, str(HERE.parent))
-    from nullfit.simulate import SIGNAL_COLUMN, TIME_COLUMN, Drift, simulate_frame
+    from nullfit.simulation.models import Drift
+    from nullfit.simulation.scans import SIGNAL_COLUMN, TIME_COLUMN, simulate_frame
 
-BANNER = "INVENTED scenario, SYNTHETIC data: made by data_demo/make_demo.py with nullfit.simulate; not a measurement."
+BANNER = "INVENTED scenario, SYNTHETIC data: made by data_demo/make_demo.py with nullfit.simulation; not a measurement."
 
 # --------------------------------------------------------------------------- the invented scenario
 LAB = "Brennmoor Optics Hall (INVENTED laboratory)"
@@ -186,7 +188,7 @@ def _toml_value(v) -> str:
 
 
 def _truth_line(truth) -> str:
-    u = truth.signal_unit
+    u = truth.unit
     parts = [f"seed {truth.seed}"]
     for h in truth.harmonics:
         parts.append(f"{h.k}θ amplitude {h.amplitude:g} {u} at phase {h.phase_deg:g}°")
@@ -209,13 +211,13 @@ def _truth_line(truth) -> str:
 
 def _manifest_text(spec: DemoScan, truth, log_name: str) -> str:
     time_col = TIME_COLUMN[spec.time_format]
-    sig_col = SIGNAL_COLUMN[truth.signal_unit]
+    sig_col = SIGNAL_COLUMN[truth.unit]
     lines = [f"# {BANNER}", f"# Manifest of {log_name} (format: docs/manifest.md).", "",
              "[scan]", f"run_id = {_toml_str(spec.run_id)}", "",
              "[columns]", f"time = {_toml_str(time_col)}", f"angle = {_toml_str('angle_deg')}",
              f"signal = {_toml_str(sig_col)}", "",
              "[units]", f"time = {_toml_str('iso' if spec.time_format == 'iso' else 's')}",
-             f"angle = {_toml_str('deg')}", f"signal = {_toml_str(truth.signal_unit)}", ""]
+             f"angle = {_toml_str('deg')}", f"signal = {_toml_str(truth.unit)}", ""]
     if spec.time_format == "relative":
         lines += ["[time]", f"start_utc = {_toml_str(spec.start_utc)}", ""]
     lines.append("[apparatus]")

@@ -17,7 +17,7 @@
 # # 1 · From a scan log to a limit
 #
 # > **Invented data.** Everything below runs on `data_demo/`: synthetic scans drawn by
-# > `nullfit.simulate` for an invented laboratory (Brennmoor Optics Hall) and an invented
+# > `nullfit.simulation` for an invented laboratory (Brennmoor Optics Hall) and an invented
 # > interferometer (BOH-2). Nothing here was measured; do not quote these numbers.
 #
 # One scan, start to finish: read the log and its manifest, look at it, fit drift and
@@ -35,7 +35,7 @@ import numpy as np
 import pandas as pd
 
 import nullfit as nf
-from nullfit import plots
+from nullfit import figures
 
 pd.set_option("display.float_format", "{:.4g}".format)
 pd.set_option("display.width", 120)
@@ -44,7 +44,7 @@ SEED = 20260312  # every random step below derives from this
 rng = np.random.default_rng(SEED)
 
 
-from nullfit.demo import demo_data_dir  # the repository's data_demo/ (or the bundled copy)
+from nullfit.output.demo import demo_data_dir  # the repository's data_demo/ (or the bundled copy)
 
 DATA = demo_data_dir()
 LOG = DATA / "injected_2theta.csv"
@@ -79,7 +79,7 @@ scan
 # is visible turn by turn; the 2θ term we are after is far below the noise of one reading.
 
 # %%
-plots.plot_scan(scan);
+figures.plot_scan(scan);
 
 # %% [markdown]
 # ## The fit
@@ -116,7 +116,7 @@ fit
 err = {}
 for e in ("turns", "hac", "ols"):
     h = nf.fit_scan(scan, errors=e).harmonic(2)
-    err[e] = {"c2": h.cos, "σ(c2)": h.sigma_cos, "s2": h.sin, "σ(s2)": h.sigma_sin}
+    err[e] = {"c2": h.c, "σ(c2)": h.sigma_c, "s2": h.s, "σ(s2)": h.sigma_s}
 pd.DataFrame(err).T
 
 # %% [markdown]
@@ -130,17 +130,17 @@ pd.DataFrame(err).T
 fit.per_turn[["turn", "time_mid_s", "n_samples", "c2", "s2", "sigma_c2", "sigma_s2"]].head(5)
 
 # %%
-plots.plot_per_turn(fit, harmonic=2);
+figures.plot_per_turn(fit, harmonic=2);
 
 # %% [markdown]
 # The signal folded by table angle (drift removed, binned means with errors, fitted
 # harmonics), and the (c₂, s₂) plane with the 95 % error ellipse:
 
 # %%
-plots.plot_folded(scan, fit, bins=16);
+figures.plot_folded(scan, fit, bins=16);
 
 # %%
-plots.plot_plane(fit, harmonic=2, confidence_level=0.95);
+figures.plot_plane(fit, harmonic=2, confidence_level=0.95);
 
 # %% [markdown]
 # ## Why "Â ± σ" is the wrong statement near zero
@@ -190,7 +190,7 @@ ana = nf.analyse(scan, velocity="orbital", confidence_level=0.95, rng=SEED, boot
 ana.limits_frame().drop(columns=["settings"])
 
 # %%
-plots.plot_limits(ana);
+figures.plot_limits(ana);
 
 # %% [markdown]
 # How to read the four rows (notebook 2 compares them properly):

@@ -32,7 +32,7 @@ import pandas as pd
 from scipy import stats
 
 import nullfit as nf
-from nullfit import plots
+from nullfit import figures
 
 pd.set_option("display.float_format", "{:.4g}".format)
 pd.set_option("display.width", 120)
@@ -40,7 +40,7 @@ pd.set_option("display.width", 120)
 SEED = 20260310  # each simulation below draws from its own generator seeded from this
 
 
-from nullfit.demo import demo_data_dir  # the repository's data_demo/ (or the bundled copy)
+from nullfit.output.demo import demo_data_dir  # the repository's data_demo/ (or the bundled copy)
 
 DATA = demo_data_dir()
 
@@ -54,10 +54,9 @@ DATA = demo_data_dir()
 scan = nf.read_scan(DATA / "quiet.csv")
 fit = nf.fit_scan(scan)
 h2 = fit.harmonic(2)
-print(f"c2 = {h2.cos:.3g}, s2 = {h2.sin:.3g} fringe;  Â2 = {h2.amplitude:.3g} fringe = {h2.snr:.2f} σ")
+print(f"c2 = {h2.c:.3g}, s2 = {h2.s:.3g} fringe;  Â2 = {h2.amplitude:.3g} fringe = {h2.snr:.2f} σ")
 
-table = nf.limits_table_for_fit(fit, confidence_level=0.95, rng=SEED, unit=fit.signal_unit,
-                                options={"bootstrap": {"replicates": 4000}})
+table = nf.limits_table(h2, confidence_level=0.95, rng=SEED, options={"bootstrap": {"replicates": 4000}})
 limits = table.attrs["limits"]
 table[["method", "lower", "upper", "upper_peak_to_peak", "sigma", "dof", "block_length"]]
 
@@ -80,10 +79,10 @@ table[["method", "lower", "upper", "upper_peak_to_peak", "sigma", "dof", "block_
 # The unified belt and the Bayesian posterior, with the limits marked:
 
 # %%
-plots.plot_belt(limits["feldman-cousins"]);
+figures.plot_belt(limits["feldman-cousins"]);
 
 # %%
-plots.plot_posterior(limits["bayes"]);
+figures.plot_posterior(limits["bayes"]);
 
 # %% [markdown]
 # Reading the belt: for each true amplitude A (vertical axis) the band holds the 95 % of
@@ -226,7 +225,7 @@ for i in range(N_SCANS):
                               ar1_coef=0.9, drift={"walk_step": 0.001}, rng=scan_rng)
     for e in pulls:
         h = nf.fit_scan(sim, harmonics=(2,), errors=e).harmonic(2)
-        pulls[e] += [h.cos / h.sigma_cos, h.sin / h.sigma_sin]
+        pulls[e] += [h.c / h.sigma_c, h.s / h.sigma_s]
 pull_table = pd.DataFrame(
     {e: {"spread of pulls": np.std(p), "|pull| > 1.96": np.mean(np.abs(p) > 1.96)} for e, p in pulls.items()}
 ).T

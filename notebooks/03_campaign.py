@@ -31,7 +31,7 @@ import numpy as np
 import pandas as pd
 
 import nullfit as nf
-from nullfit import plots
+from nullfit import figures
 
 pd.set_option("display.float_format", "{:.4g}".format)
 pd.set_option("display.width", 140)
@@ -40,7 +40,7 @@ SEED = 20260504
 rng = np.random.default_rng(SEED)
 
 
-from nullfit.demo import demo_data_dir  # the repository's data_demo/ (or the bundled copy)
+from nullfit.output.demo import demo_data_dir  # the repository's data_demo/ (or the bundled copy)
 
 DATA = demo_data_dir()
 logs = sorted((DATA / "campaign").glob("C*.csv"))
@@ -75,7 +75,7 @@ table[cols]
 # On a log scale every run excludes the hypothesis, by factors of 50 to 200:
 
 # %%
-plots.plot_expected_vs_bound(table);
+figures.plot_expected_vs_bound(table);
 
 # %%
 assert (table["ratio_expected_to_bound"] > 1).all()
@@ -122,7 +122,7 @@ sky
 
 # %%
 V_REF = 30_000.0  # the speed imposed on the orbital direction above
-kappa = sky.limits(confidence_level=0.95)
+kappa = sky.limits_frame(confidence_level=0.95)
 kappa["speed_bound_km_s"] = [None if (u is None or m.startswith("central")) else V_REF * np.sqrt(u) / 1e3
                              for m, u in zip(kappa["method"], kappa["kappa_upper"])]
 kappa[["method", "kappa_lower", "kappa_upper", "speed_bound_km_s"]]
@@ -146,15 +146,15 @@ assert fc_row["kappa_lower"] < 2 * sky.sigma  # no strong excess in null data
 # %% [markdown]
 # ### The same fit in the Robertson–Mansouri–Sexl reading
 #
-# Take as velocity the lab's motion relative to the CMB frame (`cmb+orbital+rotation`). In
+# Take as velocity the lab's motion relative to the CMB frame (`cmb+orbital+earth-rotation`). In
 # the RMS test theory the 2θ amplitude is 2|β − δ − ½| times the classical-wind amplitude, so
 # κ = −2(β − δ − ½) is signed, and its central interval bounds |β − δ − ½|.
 
 # %%
-rms_runs = [nf.analyse(s, velocity="cmb+orbital+rotation", limits=("feldman-cousins",), rng=int(seed))
+rms_runs = [nf.analyse(s, velocity="cmb+orbital+earth-rotation", limits=("feldman-cousins",), rng=int(seed))
             for s, seed in zip(scans, child)]
 rms = nf.combine_sky(rms_runs)
-central = rms.limits(0.95).set_index("method").loc["central (signed κ, RMS)"]
+central = rms.limits_frame(0.95).set_index("method").loc["central"]
 print(f"κ = {rms.kappa:.3g} ± {rms.sigma:.2g};  95 % central interval [{central['kappa_lower']:.3g}, "
       f"{central['kappa_upper']:.3g}]  →  |β − δ − ½| ≤ {central['rms_bound_abs_beta_minus_delta_minus_half']:.2g}")
 

@@ -32,7 +32,7 @@ import numpy as np
 import pandas as pd
 
 import nullfit as nf
-from nullfit import plots
+from nullfit import figures
 
 pd.set_option("display.float_format", "{:.4g}".format)
 pd.set_option("display.width", 120)
@@ -42,7 +42,7 @@ rng = np.random.default_rng(SEED)
 CL = 0.95
 
 
-from nullfit.demo import demo_data_dir  # the repository's data_demo/ (or the bundled copy)
+from nullfit.output.demo import demo_data_dir  # the repository's data_demo/ (or the bundled copy)
 
 DATA = demo_data_dir()
 
@@ -70,7 +70,7 @@ print(f"{fit.n_turns} turns of {turn_s:.0f} s;  per-turn σ(c2) = {np.sqrt(sigma
 # would mean correlated turns, and longer runs would gain less than √N.
 
 # %%
-plots.plot_allan(fit, harmonic=2);
+figures.plot_allan(fit, harmonic=2);
 
 # %% [markdown]
 # ## The target

@@ -25,16 +25,16 @@ DEFAULT_LIMITS = ("feldman-cousins", "neyman", "bayes", "bootstrap")
 
 
 def parse_harmonics(text) -> tuple[int, ...]:
+    """Harmonic orders from a comma list (``"1,2"``) or a sequence; checked by the fit's rule."""
+    from ..fitting.design import check_harmonics
+
     if isinstance(text, str):
+        items = [v for v in text.replace(" ", "").split(",") if v]
         try:
-            ks = tuple(int(v) for v in text.replace(" ", "").split(",") if v)
+            text = [int(v) for v in items]
         except ValueError:
-            raise ValueError(f"harmonics must be a comma list of positive integers, not {text!r}") from None
-    else:
-        ks = tuple(int(v) for v in text)
-    if not ks or any(k < 1 for k in ks) or len(set(ks)) != len(ks):
-        raise ValueError(f"harmonics must be distinct positive integers, not {text!r}")
-    return ks
+            raise ValueError(f"harmonics must be a comma list of positive integers, not {','.join(items)!r}") from None
+    return check_harmonics(text)
 
 
 def parse_methods(text) -> tuple[str, ...]:
@@ -146,6 +146,12 @@ class RunAnalysis(Described):
             })
         return pd.DataFrame(rows)
 
+    def __repr__(self) -> str:
+        lim = self.primary_limit
+        bound = "" if lim is None else f", {lim.method}: A{self.harmonic} {lim.interval_text}"
+        ratio = "" if self.ratio is None else f", expected/bound = {self.ratio:.3g}"
+        return f"RunAnalysis({self.run_id!r}: {self.fit.n_turns} turns{bound}{ratio})"
+
     def summary(self) -> Summary:
         unit = self.scan.unit
         h = self.fit.harmonic(self.harmonic)
@@ -169,7 +175,8 @@ class RunAnalysis(Described):
                 if getattr(lim, "empty", False):
                     val = "empty (see note)"
                 elif lim.lower not in (None, 0.0) and m == "feldman-cousins":
-                    val = f"[{lim.lower:.4g}, {lim.upper:.4g}] (two-sided)"
+                    val = (f"[{lim.lower:.4g}, {lim.upper:.4g}] (two-sided; peak-to-peak "
+                           f"[{peak_to_peak(lim.lower):.4g}, {peak_to_peak(lim.upper):.4g}])")
                 else:
                     val = f"< {lim.upper:.4g}   (peak-to-peak < {peak_to_peak(lim.upper):.4g})"
                 lrows.append((f"{m} {lim.confidence_level:.0%}", val, f"{unit} amplitude"))

@@ -88,6 +88,11 @@ class LabCombination(Described):
                 "cov": self.cov.tolist(), "amplitude": self.amplitude, "phase_deg": self.phase_deg,
                 "chi2": self.chi2, "dof": self.dof, "p_value": self.p_value, "unit": self.unit}
 
+    def __repr__(self) -> str:
+        k = self.harmonic
+        return (f"LabCombination({len(self.runs)} runs, {k}θ: c{k}={self.c:.4g}, s{k}={self.s:.4g} {self.unit}; "
+                f"χ²/dof = {self.chi2:.3g}/{self.dof})")
+
     def summary(self) -> Summary:
         k = self.harmonic
         rows = (("runs", len(self.runs), ""), (f"c{k}", self.c, self.unit), (f"s{k}", self.s, self.unit),
@@ -211,6 +216,10 @@ class ScaleFit(Described):
         return {"runs": list(self.runs), "kappa": self.kappa, "sigma": self.sigma, "chi2": self.chi2,
                 "dof": self.dof, "p_value": self.p_value, "reference_speed_m_s": self.reference_speed_m_s,
                 "speed_spread": self.speed_spread, "hypothesis": self.hypothesis}
+
+    def __repr__(self) -> str:
+        return (f"ScaleFit({len(self.runs)} runs: κ = {self.kappa:.4g}, σ(κ) = {self.sigma:.3g}; "
+                f"χ²/dof = {self.chi2:.3g}/{self.dof})")
 
     def summary(self) -> Summary:
         rows = (("runs", len(self.runs), ""), ("hypothesis", self.hypothesis, ""),

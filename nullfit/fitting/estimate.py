@@ -181,6 +181,12 @@ class HarmonicEstimate(Described):
     def summary(self) -> Summary:
         return Summary(f"{self.k or ''}θ harmonic", self.rows(), self.notes())
 
+    def __repr__(self) -> str:
+        k = "" if self.k is None else self.k
+        dof = "" if self.dof is None else f", dof={self.dof}"
+        return (f"HarmonicEstimate({k}θ: c{k}={fmt(self.c)}, s{k}={fmt(self.s)} {self.unit}, "
+                f"σ(c)={fmt(self.sigma_c)}, σ(s)={fmt(self.sigma_s)}{dof})")
+
     def to_dict(self) -> dict:
         return {"k": self.k, "c": self.c, "s": self.s, "cov": self.cov.tolist(),
                 "sigma_c": self.sigma_c, "sigma_s": self.sigma_s,

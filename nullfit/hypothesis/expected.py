@@ -226,6 +226,10 @@ class ExpectedSignal(Described):
             "site": None if self.site is None else self.site.to_dict(),
         }
 
+    def __repr__(self) -> str:
+        return (f"ExpectedSignal({self.hypothesis_label}: amplitude {self.amplitude:.4g} {self.unit}, "
+                f"peak-to-peak {self.peak_to_peak:.4g})")
+
     def summary(self) -> Summary:
         u = self.unit
         rows = [
@@ -392,12 +396,12 @@ def expected_for_scan(scan: Any, velocity: Velocity | LabWind | str | None = Non
 
     Uses ``scan.time`` (seconds after ``scan.epoch_unix``), ``scan.epoch_unix`` (Unix seconds
     or None) and, unless given here, ``scan.meta.apparatus`` / ``scan.meta.site`` (manifest
-    mappings, possibly empty).  If the scan has a ``signal_unit`` ("fringe"/"fractional") it
+    mappings, possibly empty).  If the scan has a ``unit`` ("fringe"/"fractional") it
     must match the apparatus's signal (a manifest table without ``signal`` takes the scan's).  A sky velocity needs ``epoch_unix`` and a site; a lab wind
     (``velocity=None`` with ``speed_m_s``, or ``"lab:..."``) needs neither.
     """
     meta = getattr(scan, "meta", None)
-    scan_unit = getattr(scan, "signal_unit", None)
+    scan_unit = getattr(scan, "unit", None)
     if apparatus is None:
         app_map = dict(getattr(meta, "apparatus", None) or {})
         if not app_map:

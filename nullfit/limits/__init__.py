@@ -33,7 +33,7 @@ import numpy as np
 from ..core.conventions import check_confidence_level, make_rng
 from .bayes import PRIORS
 from .bootstrap import SCHEMES
-from .inputs import as_estimate
+from .inputs import KEEP, as_estimate
 from .registry import AMPLITUDE_METHODS, METHODS, get, method_name
 from .result import Limit, Posterior
 from .scalar import ScalarEstimate
@@ -42,7 +42,7 @@ from .unified import unified_gaussian_interval
 
 
 def amplitude_limit(c, s=None, cov=None, *, method: str = "feldman-cousins", confidence_level: float = 0.95,
-                    rng=None, dof=None, turns=None, harmonic=None, unit=None, **options) -> Limit:
+                    rng=None, dof=KEEP, turns=None, harmonic=None, unit=None, **options) -> Limit:
     """Limit on the amplitude of a harmonic estimate.
 
     Parameters
@@ -57,10 +57,11 @@ def amplitude_limit(c, s=None, cov=None, *, method: str = "feldman-cousins", con
         E.g. 0.95 (never alpha).
     rng : int, numpy.random.Generator or None
         Randomness for the bootstrap; the seed is recorded in the result.
-    dof : int, optional
+    dof : int or None, optional
         Degrees of freedom of ``cov`` when it was estimated from the scatter of ``N`` per-turn
         coefficients (``dof = N − 1``); the frequentist methods and the Bayesian kernel then
-        account for the estimated covariance (Hotelling), see the method modules.
+        account for the estimated covariance (Hotelling), see the method modules.  Default: the
+        estimate's own; ``dof=None`` treats the covariance as exact.
     turns : array_like, shape (N, 2), optional
         Per-turn ``(c, s)`` estimates; required by ``"bootstrap"``.
     harmonic, unit : optional
@@ -118,7 +119,7 @@ def _row(lim: Limit) -> dict:
     }
 
 
-def limits_table(c, s=None, cov=None, *, methods=None, confidence_level: float = 0.95, rng=None, dof=None,
+def limits_table(c, s=None, cov=None, *, methods=None, confidence_level: float = 0.95, rng=None, dof=KEEP,
                  turns=None, options=None, harmonic=None, unit=None):
     """Every method at once: a DataFrame with one row per method (amplitude limits).
 

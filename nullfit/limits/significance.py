@@ -27,7 +27,7 @@ from ..core.conventions import make_rng
 from ..core.render import Described, Summary
 from .amplitude_dist import aniso_sf
 from .covariance import covariance_shape
-from .inputs import as_estimate
+from .inputs import KEEP, as_estimate
 
 METHODS = ("auto", "rayleigh", "integration", "simulation", "hotelling")
 
@@ -67,6 +67,9 @@ class Significance(Described):
             "notes": list(self.notes),
         }
 
+    def __repr__(self) -> str:
+        return f"Significance(p = {self.p_value:.3g} for A = 0, z = {self.z:.3g}; {self.method})"
+
     def summary(self) -> Summary:
         k = f"{self.harmonic}θ " if self.harmonic else ""
         rows = [
@@ -95,7 +98,7 @@ def _simulate(s1, s2, a, n_sim, rng):
     return hits / n_sim
 
 
-def detection_significance(c, s=None, cov=None, *, rng=None, method: str = "auto", dof=None,
+def detection_significance(c, s=None, cov=None, *, rng=None, method: str = "auto", dof=KEEP,
                            n_sim: int = 200_000, harmonic=None, unit=None) -> Significance:
     """p-value of the amplitude ``hypot(c, s)`` under ``A = 0`` (see module docstring).
 

@@ -240,7 +240,7 @@ def intervals_estimated_cov(amplitudes, covs, dof: int, confidence_level: float)
     return lo * sig, up * sig
 
 
-def _interval_many(amplitudes, shape: CovarianceShape, confidence_level: float):
+def intervals_many(amplitudes, shape: CovarianceShape, confidence_level: float):
     """Vectorised unified intervals (same covariance) — used by the coverage studies."""
     shape = with_min_rho(shape, MIN_RHO)
     x = np.asarray(amplitudes, dtype=float) / shape.sigma

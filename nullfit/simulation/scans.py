@@ -7,7 +7,7 @@ readings as the raw columns a logger would write (for CSV demo files).
 Model
 -----
 The turntable turns at a constant rate, one turn per ``period_s`` seconds, and is read at equal
-time steps.  The signal is (DESIGN.md, "Conventions")::
+time steps.  The signal is (``docs/conventions.md``)::
 
     y_i = drift(t_i) + Σ_k [c_k cos kθ_i + s_k sin kθ_i] + noise_i + outlier_i
 
@@ -235,7 +235,7 @@ def _simulate(*, n_turns=20, period_s=60.0, samples_per_turn=64, marks=None, rep
         period_s=float(period_s), samples_per_turn=None if marks else int(samples_per_turn),
         marks=None if marks is None else int(marks), repeat_start_mark=bool(repeat_start_mark),
         start_angle_deg=float(start_angle_deg), sense=int(sense), angles_mod_360=bool(angles_mod_360),
-        epoch_unix=None if epoch_unix is None else int(epoch_unix), signal_unit=signal_unit,
+        epoch_unix=None if epoch_unix is None else int(epoch_unix), unit=signal_unit,
         outlier_fraction=out_frac, outlier_size=out_size, gaps=gap_spec, n_grid=n,
         kept=keep, time=t[keep], theta=theta[keep], angle_logged_deg=logged[keep],
         harmonic_signal=h[keep], drift_signal=d[keep], noise_signal=eps[keep], outlier_signal=out_sig,
@@ -365,5 +365,5 @@ def simulate_frame(*, time_format: str = "relative", **kwargs):
         stamps = np.datetime64(int(truth.epoch_unix), "s").astype("datetime64[us]") + us
         tcol = np.char.add(np.datetime_as_string(stamps, unit="us"), "Z")
     df = pd.DataFrame({TIME_COLUMN[time_format]: tcol, "angle_deg": truth.angle_logged_deg,
-                       SIGNAL_COLUMN[truth.signal_unit]: truth.signal})
+                       SIGNAL_COLUMN[truth.unit]: truth.signal})
     return df, truth

@@ -60,7 +60,7 @@ class Truth(Described):
     sense: int
     angles_mod_360: bool
     epoch_unix: int | None
-    signal_unit: str
+    unit: str
     outlier_fraction: float
     outlier_size: float
     gaps: Any
@@ -126,7 +126,7 @@ class Truth(Described):
                          "repeat_start_mark": self.repeat_start_mark, "start_angle_deg": self.start_angle_deg,
                          "sense": self.sense, "angles_mod_360": self.angles_mod_360,
                          "epoch_unix": self.epoch_unix},
-            "signal_unit": self.signal_unit,
+            "unit": self.unit,
             "outliers": {"fraction": self.outlier_fraction, "size": self.outlier_size, "count": self.n_outliers},
             "gaps": {"spec": _gaps_jsonable(self.gaps), "removed": self.n_removed},
             "n_grid": self.n_grid,
@@ -135,7 +135,7 @@ class Truth(Described):
         }
 
     def summary(self) -> Summary:
-        u = self.signal_unit
+        u = self.unit
         rows = [("seed", self.seed, ""), ("readings", self.n_samples, ""),
                 ("readings removed (gaps)", self.n_removed, ""), ("outliers", self.n_outliers, ""),
                 ("period", self.period_s, "s")]

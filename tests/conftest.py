@@ -1,0 +1,139 @@
+"""Shared builders for the test suite (exposed as fixtures that return the builder functions).
+
+* ``make_arrays(rng, ...)`` → ``(t, angle_deg, y, tilt)``: a continuously sampled scan with a
+  quadratic drift, the harmonics ``coef = (c1, s1, c2, s2)``, AR(1) noise (``ar``) and a random-walk
+  tilt channel (coupled into the signal by ``tilt_coef``);
+* ``make_scan(seed, ...)`` → the same as a validated `Scan` with the tilt as aux column ``"tilt"``;
+* ``reference_design(scan, drift, aux, harmonics)`` → a dense design built independently of
+  ``nullfit.fitting`` (raw time powers, explicit per-turn columns, B-splines coefficient by
+  coefficient) for comparisons with statsmodels;
+* ``loop_reference(scan, ...)`` → per-turn ``numpy.linalg.lstsq`` fits, the obvious
+  implementation of the per-turn demodulation.
+"""
+
+import numpy as np
+import pytest
+from scipy.interpolate import BSpline
+
+from nullfit.fitting.design import scale_time, spline_intervals, spline_knots, typical_turn_period
+from nullfit.reading.scan import Scan
+
+#: (c1, s1, c2, s2) of the default synthetic scan.
+TRUE = (0.05, 0.1, 0.3, -0.12)
+
+
+def _make_arrays(rng, *, per_turn=40, n_turns=12, extra=13, start_deg=20.0, dt=0.5, ar=0.6, noise=0.01,
+                 coef=TRUE, tilt_coef=0.0, offset=0.0, quadratic=3e-7):
+    rng = np.random.default_rng(rng) if not isinstance(rng, np.random.Generator) else rng
+    n = per_turn * n_turns + extra
+    t = np.arange(n) * dt
+    ang = np.arange(n) * 360.0 / per_turn + start_deg
+    th = np.deg2rad(ang)
+    e = np.zeros(n)
+    w = noise * rng.normal(size=n)
+    e[0] = w[0]
+    for i in range(1, n):
+        e[i] = ar * e[i - 1] + w[i]
+    tilt = np.cumsum(rng.normal(size=n)) * 0.1
+    y = (offset + 2e-3 * t + quadratic * t ** 2 + coef[0] * np.cos(th) + coef[1] * np.sin(th)
+         + coef[2] * np.cos(2 * th) + coef[3] * np.sin(2 * th) + tilt_coef * tilt + e)
+    return t, ang, y, tilt
+
+
+def _make_scan(seed=0, **kw):
+    t, ang, y, tilt = _make_arrays(np.random.default_rng(seed), **kw)
+    return Scan.from_arrays(t, ang, y, aux={"tilt": tilt})
+
+
+def _reference_design(scan, drift, aux=False, harmonics=(1, 2)):
+    """Dense design built independently of nullfit.fitting (complete turns only):
+    ``(X, y, number of nuisance columns before the harmonics)``."""
+    keep = scan.turn_complete[scan.turn]
+    t, th, turn = scan.time[keep], scan.angle[keep], scan.turn[keep]
+    cols = []
+    if drift.startswith("per-turn"):
+        deg = 1 if drift == "per-turn" else int(drift.split(":")[1])
+        for tr in np.unique(turn):
+            m = turn == tr
+            tm = 0.5 * (t[m][0] + t[m][-1])
+            for d in range(deg + 1):
+                cols.append(np.where(m, (t - tm) ** d, 0.0))
+    elif drift.startswith("poly"):
+        u = (t - t.mean()) / 100.0  # raw powers: same column space as Legendre in scaled time
+        cols += [u ** d for d in range(int(drift.split(":")[1]) + 1)]
+    elif drift.startswith("spline"):
+        h = float(drift.split(":")[1])
+        starts = np.flatnonzero(np.r_[True, turn[1:] != turn[:-1]])
+        period = typical_turn_period(t[starts], t[0], t[-1], t.size)
+        knots = spline_knots(spline_intervals(t[-1] - t[0], period, h))
+        u = scale_time(t, t[0], t[-1])
+        for j in range(knots.size - 4):
+            c = np.zeros(knots.size - 4)
+            c[j] = 1.0
+            cols.append(np.nan_to_num(BSpline(knots, c, 3, extrapolate=False)(u)))
+        cols[-1][u == 1.0] = 1.0  # right end point belongs to the last basis function
+    else:
+        cols.append(np.ones(t.size))
+    n_nuis = len(cols)
+    for k in harmonics:
+        cols += [np.cos(k * th), np.sin(k * th)]
+    if aux:
+        cols.append(scan.aux["tilt"][keep])
+    return np.column_stack(cols), scan.signal[keep], n_nuis
+
+
+def _loop_reference(scan, harmonics=(1, 2), degree=1, complete_only=True, y=None):
+    """Per-turn numpy.linalg.lstsq on ``1, (t − t_mid), …, cos kθ, sin kθ``; a dict of arrays over
+    the fitted turns (columns as in ``demodulate``); σ from ``RSS/(n − p) · (XᵀX)⁻¹``."""
+    y = scan.signal if y is None else y
+    out = {k: [] for k in ["turn", "time_mid_s", "n_samples", "resid_rms"]}
+    for k in harmonics:
+        for nm in (f"c{k}", f"s{k}", f"sigma_c{k}", f"sigma_s{k}"):
+            out[nm] = []
+    for tr in np.unique(scan.turn):
+        if complete_only and not scan.turn_complete[tr]:
+            continue
+        m = scan.turn == tr
+        t, a, yy = scan.time[m], scan.angle[m], y[m]
+        tm = 0.5 * (t[0] + t[-1])
+        cols = [(t - tm) ** d for d in range(degree + 1)]
+        for k in harmonics:
+            cols += [np.cos(k * a), np.sin(k * a)]
+        X = np.column_stack(cols)
+        p = X.shape[1]
+        if m.sum() <= p:
+            continue
+        b, *_ = np.linalg.lstsq(X, yy, rcond=None)
+        r = yy - X @ b
+        cov = (r @ r) / (m.sum() - p) * np.linalg.inv(X.T @ X)
+        out["turn"].append(tr)
+        out["time_mid_s"].append(tm)
+        out["n_samples"].append(m.sum())
+        out["resid_rms"].append(np.sqrt(r @ r / m.sum()))
+        for j, k in enumerate(harmonics):
+            i = degree + 1 + 2 * j
+            out[f"c{k}"].append(b[i])
+            out[f"s{k}"].append(b[i + 1])
+            out[f"sigma_c{k}"].append(np.sqrt(cov[i, i]))
+            out[f"sigma_s{k}"].append(np.sqrt(cov[i + 1, i + 1]))
+    return {k: np.array(v) for k, v in out.items()}
+
+
+@pytest.fixture
+def make_arrays():
+    return _make_arrays
+
+
+@pytest.fixture
+def make_scan():
+    return _make_scan
+
+
+@pytest.fixture
+def reference_design():
+    return _reference_design
+
+
+@pytest.fixture
+def loop_reference():
+    return _loop_reference
