@@ -136,7 +136,7 @@ def annual_design(model: str, *, latitude_deg: float, velocity=None, orbit: bool
     """The annual Fourier terms of the design (exact: the design is a trigonometric polynomial of degree ≤ 2 in W)."""
     model = check_model(model)
     if not isinstance(orbit, bool):
-        raise ValueError("annual_design needs orbit=True or False (the circular orbit defines the W-dependence)")
+        raise TypeError("annual_design needs orbit=True or False (the circular orbit defines the W-dependence)")
     n = 8
     W = 2.0 * np.pi * np.arange(n) / n
     M = _columns(model, latitude_deg=latitude_deg, annual_phase_deg=np.rad2deg(W), velocity=velocity,

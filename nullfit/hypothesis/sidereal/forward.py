@@ -34,6 +34,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ...core.conventions import SPEED_OF_LIGHT
 from ...core.render import Described, Summary
 from ..apparatus import Apparatus
 from ..earth import unix_times
@@ -49,7 +50,6 @@ from .frames import (
 from .parameters import check_model, check_values
 from .quadratures import closed_form
 from .tensor import rotated, sky_tensor, sun_fixed_beta
-from ...core.conventions import SPEED_OF_LIGHT
 
 __all__ = [
     "theta_south_from_table", "table_from_theta_south", "log_gain", "c2s2_from_bc", "bc_from_c2s2",

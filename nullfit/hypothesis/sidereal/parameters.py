@@ -20,8 +20,8 @@ One parameter ``P_MM = δ − β + ½`` (0 in special relativity, ½ for Galilea
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass
-from typing import Mapping
 
 import numpy as np
 
@@ -101,14 +101,14 @@ class SkyParameters(Described):
         object.__setattr__(self, "values", tuple(check_values(model, vals).items()))
 
     @classmethod
-    def sme(cls, **values: float) -> "SkyParameters":
+    def sme(cls, **values: float) -> SkyParameters:
         """SME parameters by keyword; ``e_XX-YY`` is spelt ``e_XX_YY`` here."""
         if "e_XX_YY" in values:
             values["e_XX-YY"] = values.pop("e_XX_YY")
         return cls("sme", tuple(values.items()))
 
     @classmethod
-    def rms(cls, P_MM: float) -> "SkyParameters":
+    def rms(cls, P_MM: float) -> SkyParameters:
         return cls("rms", (("P_MM", P_MM),))
 
     @property

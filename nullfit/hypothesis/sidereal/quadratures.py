@@ -32,7 +32,14 @@ import numpy as np
 from ...core.render import Described, Summary
 from .frames import colatitude_rad, precession_matrix, sun_to_lab
 from .parameters import SkyParameters, check_model, check_values
-from .tensor import SkyTensor, rotated, rotation_beta, sky_tensor, sun_fixed_beta, tensor_for_velocity
+from .tensor import (
+    SkyTensor,
+    rotated,
+    rotation_beta,
+    sky_tensor,
+    sun_fixed_beta,
+    tensor_for_velocity,
+)
 
 __all__ = ["QUADRATURE_KEYS", "quadratures", "closed_form", "numeric_quadratures", "Quadratures"]
 
@@ -190,12 +197,12 @@ class Quadratures(Described):
     @classmethod
     def compute(cls, parameters: SkyParameters, *, latitude_deg: float, annual_phase_deg: float = 0.0,
                 velocity=None, orbit: bool = True, rotation: bool = False, pair: bool = True,
-                precess_to_unix: float | None = None) -> "Quadratures":
+                precess_to_unix: float | None = None) -> Quadratures:
         """Evaluate :func:`quadratures` (closed form) for ``parameters``; arguments as there."""
         if not isinstance(parameters, SkyParameters):
             raise TypeError("parameters must be a SkyParameters")
         if not isinstance(orbit, bool):
-            raise ValueError("Quadratures.compute takes orbit=True/False; use quadratures() for an explicit vector")
+            raise TypeError("Quadratures.compute takes orbit=True/False; use quadratures() for an explicit vector")
         q = _quadrature_array(parameters.model, parameters, latitude_deg=latitude_deg,
                               annual_phase_deg=float(annual_phase_deg), velocity=velocity, orbit=orbit,
                               rotation=rotation, pair=pair, precess_to_unix=precess_to_unix)
@@ -222,8 +229,8 @@ class Quadratures(Described):
         notes = (
             "(ν₁ − ν₂)/ν = B sin 2θ_S + C cos 2θ_S, θ_S of arm 1 from south towards east"
             if self.pair else "one resonator against a fixed one: half the pair's coefficients",
-            f"latitude {self.latitude_deg:g}°, annual phase W = {self.annual_phase_deg:g}°, orbit "
-            f"{'on' if self.orbit else 'off'}, Earth rotation {'on' if self.rotation else 'off'}, velocity {vel}",
+            (f"latitude {self.latitude_deg:g}°, annual phase W = {self.annual_phase_deg:g}°, orbit "
+             f"{'on' if self.orbit else 'off'}, Earth rotation {'on' if self.rotation else 'off'}, velocity {vel}"),
         )
         return Summary(f"Sidereal quadratures ({self.parameters.model.upper()})", rows, notes,
                        sections=(self.parameters.summary(),))
