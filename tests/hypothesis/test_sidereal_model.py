@@ -272,6 +272,13 @@ def test_equator_kills_2w_of_B_and_1w_of_C():
             assert abs(q[k]) < 1e-12 * scale, (model, k)
         for k in ("Cs2", "Bs1", "Bc1"):
             assert abs(q[k]) > 1e-3 * scale, (model, k)
+    # With the lab-fixed Earth-rotation velocity, C keeps 1w terms at the equator: C_s1 = A_X,
+    # C_c1 = −A_Y with A = −2 P_MM u β⃗_s (docs/sky.md, "Earth rotation"), checked on the numeric route.
+    beta_s = np.array([1e-3, -2e-3, 0.5e-3])
+    q = sd.quadratures("rms", {"P_MM": 0.5}, latitude_deg=0.0, velocity=beta_s * SPEED_OF_LIGHT, orbit=False,
+                       rotation=True, method="numeric")
+    A = -2 * 0.5 * (sd.rotation_speed_m_s(0.0) / SPEED_OF_LIGHT) * beta_s
+    assert q["Cs1"] == pytest.approx(A[0], rel=1e-9) and q["Cc1"] == pytest.approx(-A[1], rel=1e-9)
 
 
 def test_single_resonator_sees_half_the_pair():
