@@ -19,7 +19,7 @@ import numpy as np
 
 from ...core.render import Described, Summary
 from .parameters import MODEL_NAMES, check_model
-from .quadratures import QUADRATURE_KEYS, _quadrature_array
+from .quadratures import QUADRATURE_KEYS, quadrature_array
 
 __all__ = ["Design", "design_matrix", "AnnualDesign", "annual_design", "ANNUAL_TERMS"]
 
@@ -32,7 +32,7 @@ def _columns(model, *, latitude_deg, annual_phase_deg, velocity, orbit, rotation
     names = MODEL_NAMES[model]
     cols = []
     for name in names:
-        q = _quadrature_array(model, {name: 1.0}, latitude_deg=latitude_deg, annual_phase_deg=annual_phase_deg,
+        q = quadrature_array(model, {name: 1.0}, latitude_deg=latitude_deg, annual_phase_deg=annual_phase_deg,
                               velocity=velocity, orbit=orbit, rotation=rotation, pair=pair,
                               precess_to_unix=precess_to_unix)
         cols.append(q)

@@ -112,7 +112,7 @@ def _precession(precess_to_unix) -> np.ndarray | None:
     return precession_matrix(epoch_unix=math.floor(t), time_s=[t - math.floor(t)])[0]
 
 
-def _quadrature_array(model, params, *, latitude_deg, annual_phase_deg=0.0, velocity=None, orbit=True,
+def quadrature_array(model, params, *, latitude_deg, annual_phase_deg=0.0, velocity=None, orbit=True,
                       rotation=False, pair=True, method="closed", precess_to_unix=None) -> np.ndarray:
     model = check_model(model)
     values = check_values(model, params)
@@ -172,7 +172,7 @@ def quadratures(model: str, params, *, latitude_deg: float, annual_phase_deg=0.0
     dict
         Dimensionless (fractional-frequency) quadratures; floats, or arrays for an array ``W``.
     """
-    q = _quadrature_array(model, params, latitude_deg=latitude_deg, annual_phase_deg=annual_phase_deg,
+    q = quadrature_array(model, params, latitude_deg=latitude_deg, annual_phase_deg=annual_phase_deg,
                           velocity=velocity, orbit=orbit, rotation=rotation, pair=pair, method=method,
                           precess_to_unix=precess_to_unix)
     if q.ndim == 1:
@@ -203,7 +203,7 @@ class Quadratures(Described):
             raise TypeError("parameters must be a SkyParameters")
         if not isinstance(orbit, bool):
             raise TypeError("Quadratures.compute takes orbit=True/False; use quadratures() for an explicit vector")
-        q = _quadrature_array(parameters.model, parameters, latitude_deg=latitude_deg,
+        q = quadrature_array(parameters.model, parameters, latitude_deg=latitude_deg,
                               annual_phase_deg=float(annual_phase_deg), velocity=velocity, orbit=orbit,
                               rotation=rotation, pair=pair, precess_to_unix=precess_to_unix)
         vel = None if velocity is None else tuple(float(x) for x in np.asarray(velocity, dtype=float))
