@@ -12,7 +12,7 @@ from pathlib import Path
 import pytest
 
 PKG = Path(__file__).resolve().parents[1] / "nullfit"
-STAGES = ["core", "reading", "simulation", "fitting", "limits", "hypothesis", "campaign", "figures", "output", "cli"]
+STAGES = ["core", "reading", "fitting", "limits", "hypothesis", "simulation", "campaign", "figures", "output", "cli"]
 MAX_LINES = 600
 
 
