@@ -13,6 +13,7 @@ The same ratio follows from the two peak-to-peak values.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import Any, Mapping
 
 import numpy as np
@@ -20,6 +21,7 @@ import numpy as np
 from ..core.conventions import check_confidence_level, make_rng, peak_to_peak
 from ..core.errors import AnalysisError
 from ..core.render import Described, Summary
+from .facts import aux_status, plural, reading_facts, reading_notes, reading_rows
 
 DEFAULT_LIMITS = ("feldman-cousins", "neyman", "bayes", "bootstrap")
 
@@ -58,7 +60,11 @@ def child_seeds(seed: int, n: int) -> list[int]:
 @dataclass(frozen=True, eq=False)
 class RunAnalysis(Described):
     """A scan taken through the whole job: `ScanFit`, `Limit` per method, significance and
-    (when a hypothesis is given) the `ExpectedSignal` and the expected/bound ratio."""
+    (when a hypothesis is given) the `ExpectedSignal` and the expected/bound ratio.
+
+    A limit route that cannot run on these data (e.g. the bootstrap on three turns) does not
+    stop the others: its reason is kept in ``failed`` (method → one-line reason) and shown in
+    the summary, the JSON and the limits table."""
 
     scan: Any = field(repr=False)
     fit: Any = field(repr=False)
@@ -69,6 +75,8 @@ class RunAnalysis(Described):
     apparatus: Any
     seed: int | None
     settings: Mapping[str, Any]
+    failed: Mapping[str, str] = field(default_factory=dict)
+    notes: tuple[str, ...] = ()
 
     # ----------------------------------------------------------------- derived
     @property
@@ -76,8 +84,12 @@ class RunAnalysis(Described):
         return self.scan.run_id
 
     @property
+    def unit(self) -> str:
+        return self.scan.unit
+
+    @property
     def primary_limit(self):
-        """The limit that feeds the ratio: the first method listed."""
+        """The limit that feeds the ratio: the first method listed that could run."""
         return next(iter(self.limits.values())) if self.limits else None
 
     @property
@@ -94,30 +106,59 @@ class RunAnalysis(Described):
             return None
         return float(exp.speed_bound(lim.upper))
 
+    @property
+    def random(self) -> bool:
+        """True when a random step ran (a bootstrap limit, a simulated p-value): only then does
+        the seed matter for reproducing the numbers."""
+        if any(getattr(lim, "seed", None) is not None for lim in self.limits.values()):
+            return True
+        return getattr(self.significance, "seed", None) is not None
+
+    @property
+    def facts(self) -> dict[str, Any]:
+        """Rows dropped while reading, rows in partial turns, direction changes, gaps."""
+        return reading_facts(self.scan, self.fit)
+
     # ----------------------------------------------------------------- rendering
     def to_dict(self) -> dict:
         fd = self.fit.to_dict()
+        harmonics = fd.pop("harmonics")
+        n = fd.pop("chi2_dof_n", None)
+        fd["chi2_degrees_of_freedom"] = n
+        fd["chi2_dof"] = self.fit.chi2_dof
+        for key in ("dropped_rows", "scan_dropped_rows", "excluded_rows", "excluded", "source", "unit",
+                    "n_samples", "n_turns", "drift", "errors"):
+            fd.pop(key, None)  # said once, at the top level
+        facts = self.facts
         d: dict[str, Any] = {
             "source": self.scan.source,
             "run_id": self.run_id,
-            "unit": self.scan.unit,
+            "unit": self.unit,
             "n_samples": int(self.fit.n_samples),
             "n_turns": int(self.fit.n_turns),
-            "dropped_rows": int(self.fit.dropped_rows),
-            "dropped": {"scan": dict(self.scan.dropped), "partial_turn_rows": int(self.fit.excluded_rows)},
+            **facts,
             "drift": self.fit.drift,
             "errors": self.fit.errors,
-            "harmonics": fd["harmonics"],
+            "harmonics": harmonics,
             "fit": fd,
             "seed": self.seed,
+            "random_steps": self.random,
             "settings": dict(self.settings),
+            "notes": list(self.all_notes()),
         }
-        if self.limits:
-            d["limits"] = {m: lim.to_dict() for m, lim in self.limits.items()}
+        if self.limits or self.failed:
+            d["limits"] = {}
+            for m, lim in self.limits.items():
+                ld = lim.to_dict()
+                if getattr(lim, "empty", False):
+                    ld["empty_reason"] = empty_reason(lim)
+                d["limits"][m] = ld
+            d["limits_failed"] = dict(self.failed)
         if self.significance is not None:
             d["significance"] = self.significance.to_dict()
         if self.expected is not None:
             d["expected"] = {
+                "unit": self.unit,
                 "amplitude": self.expected.amplitude,
                 "peak_to_peak": self.expected.peak_to_peak,
                 "mean_amplitude": self.expected.mean_amplitude,
@@ -129,61 +170,90 @@ class RunAnalysis(Described):
         return d
 
     def limits_frame(self):
-        """The limits side by side, one row per method (amplitude and peak-to-peak, in ``unit``)."""
+        """The limits side by side, one row per method (amplitude and peak-to-peak, in ``unit``);
+        a route that could not run has a row too, its reason in ``note``."""
         import pandas as pd
 
         rows = []
         for m, lim in self.limits.items():
+            empty = bool(getattr(lim, "empty", False))
             rows.append({
                 "method": m,
                 "confidence_level": lim.confidence_level,
                 "lower": lim.lower,
                 "upper (amplitude)": lim.upper,
                 "upper (peak-to-peak)": None if lim.upper is None else peak_to_peak(lim.upper),
-                "unit": self.scan.unit,
-                "empty": bool(getattr(lim, "empty", False)),
+                "unit": self.unit,
+                "empty": empty,
                 "settings": _limit_settings(lim),
+                "note": empty_reason(lim) if empty else "",
             })
+        cl = self.settings.get("confidence_level")
+        for m, why in self.failed.items():
+            rows.append({"method": m, "confidence_level": cl, "lower": None, "upper (amplitude)": None,
+                         "upper (peak-to-peak)": None, "unit": self.unit, "empty": False, "settings": "",
+                         "note": f"not computed: {why}"})
         return pd.DataFrame(rows)
 
     def __repr__(self) -> str:
         lim = self.primary_limit
         bound = "" if lim is None else f", {lim.method}: A{self.harmonic} {lim.interval_text}"
         ratio = "" if self.ratio is None else f", expected/bound = {self.ratio:.3g}"
-        return f"RunAnalysis({self.run_id!r}: {self.fit.n_turns} turns{bound}{ratio})"
+        return f"RunAnalysis({self.run_id!r}: {plural(int(self.fit.n_turns), 'turn')}{bound}{ratio})"
+
+    def all_notes(self) -> tuple[str, ...]:
+        notes = tuple(getattr(self.fit, "notes", ()) or ())
+        notes += reading_notes(self.facts) + tuple(aux_status(self.scan, self.fit)) + tuple(self.notes)
+        notes += tuple(f"{m} limit not computed: {why}" for m, why in self.failed.items())
+        if self.random and self.seed is not None:
+            notes += (f"random seed {self.seed} (reproduces the random steps)",)
+        return tuple(dict.fromkeys(notes))
 
     def summary(self) -> Summary:
-        unit = self.scan.unit
-        h = self.fit.harmonic(self.harmonic)
+        unit = self.unit
         k = self.harmonic
+        fit = self.fit
         rows = [
             ("run", self.run_id, ""),
-            ("samples / turns", f"{self.fit.n_samples} / {self.fit.n_turns}", ""),
-            ("dropped rows", self.fit.dropped_rows, ""),
-            ("drift model", self.fit.drift, ""),
-            ("errors", self.fit.errors_description, ""),
-            (f"c{k}", h.c, unit),
-            (f"s{k}", h.s, unit),
-            (f"σ(c{k}) / σ(s{k})", f"{h.sigma_c:.3g} / {h.sigma_s:.3g}", unit),
-            (f"observed amplitude A{k} (biased near 0)", h.amplitude, unit),
-            (f"phase φ{k}", h.phase_deg, "deg"),
+            ("samples / turns fitted", f"{fit.n_samples} / {fit.n_turns}", ""),
+            *reading_rows(self.facts),
+            ("drift model", fit.drift, ""),
+            ("errors", fit.errors_description, ""),
         ]
-        sections = []
-        if self.limits:
+        if fit.chi2_dof is not None:
+            rows.append(("χ²/dof of the per-turn scatter", fit.chi2_dof,
+                         f"({fit.chi2_dof_n} dof; expected 1 for white noise within turns)"))
+        for name, c, v in zip(getattr(fit, "aux_names", ()) or (),
+                              fit.aux_coef if getattr(fit, "aux_coef", None) is not None else (),
+                              np.diag(fit.aux_cov) if getattr(fit, "aux_cov", None) is not None else ()):
+            rows.append((f"coupling to {name}", c, f"{unit} per unit of {name} (σ {float(np.sqrt(v)):.3g})"))
+        hrows = []
+        for kk in fit.harmonics:
+            h = fit.harmonic(kk)
+            hrows += [
+                (f"c{kk}", h.c, unit),
+                (f"s{kk}", h.s, unit),
+                (f"σ(c{kk}) / σ(s{kk})", f"{h.sigma_c:.3g} / {h.sigma_s:.3g}", unit),
+                (f"observed amplitude A{kk} (biased near 0)", h.amplitude, unit),
+                (f"phase φ{kk}", h.phase_deg, "deg"),
+            ]
+        sections = [Summary("Fitted harmonics" + (f" (limits on {k}θ)" if self.limits else ""), tuple(hrows))]
+        if self.limits or self.failed:
             lrows = []
             for m, lim in self.limits.items():
                 if getattr(lim, "empty", False):
-                    val = "empty (see note)"
+                    val = f"empty: {empty_reason(lim)}"
                 elif lim.lower not in (None, 0.0) and m == "feldman-cousins":
                     val = (f"[{lim.lower:.4g}, {lim.upper:.4g}] (two-sided; peak-to-peak "
                            f"[{peak_to_peak(lim.lower):.4g}, {peak_to_peak(lim.upper):.4g}])")
                 else:
                     val = f"< {lim.upper:.4g}   (peak-to-peak < {peak_to_peak(lim.upper):.4g})"
-                lrows.append((f"{m} {lim.confidence_level:.0%}", val, f"{unit} amplitude"))
-            notes = ()
+                lrows.append((f"{m} {lim.confidence_level * 100:g} %", val, f"{unit} amplitude"))
+            for m, why in self.failed.items():
+                lrows.append((m, f"not computed: {why}", ""))
             if self.significance is not None:
                 lrows.append(("p-value of A = 0", self.significance.p_value, ""))
-            sections.append(Summary(f"Limits on the {k}θ amplitude", tuple(lrows), notes))
+            sections.append(Summary(f"Limits on the {k}θ amplitude", tuple(lrows)))
         if self.expected is not None:
             e = self.expected
             erows = [
@@ -196,16 +266,19 @@ class RunAnalysis(Described):
                 erows.append((f"ratio expected / bound ({self.primary_limit.method})", self.ratio, ""))
                 erows.append(("speed bound", self.speed_bound_m_s, "m/s"))
             sections.append(Summary("Expected signal", tuple(erows)))
-        notes = tuple(self.fit.notes) if hasattr(self.fit, "notes") else ()
-        if self.seed is not None:
-            notes += (f"random seed {self.seed}",)
-        return Summary(f"nullfit run {self.run_id}", tuple(rows), notes, tuple(sections))
+        return Summary(f"nullfit run {self.run_id}", tuple(rows), self.all_notes(), tuple(sections))
+
+
+def empty_reason(lim) -> str:
+    """Why a limit is the empty set (the method's own last note)."""
+    notes = tuple(getattr(lim, "notes", ()) or ())
+    return notes[-1] if notes else "no amplitude is compatible with the observation at this confidence level"
 
 
 def _limit_settings(lim) -> str:
     parts = []
     if getattr(lim, "prior", None):
-        parts.append(f"prior={lim.prior}")
+        parts.append(f"prior: {lim.prior}")
     if getattr(lim, "block_length", None):
         parts.append(f"{lim.scheme} blocks of {lim.block_length} turns, {lim.replicates} replicates, seed {lim.seed}")
     if getattr(lim, "dof", None):
@@ -213,15 +286,36 @@ def _limit_settings(lim) -> str:
     return "; ".join(parts)
 
 
+def _raised_by_nullfit(err: BaseException) -> bool:
+    """True when the innermost frame that raised ``err`` is nullfit's own code (a limit route's
+    refusal), not a library deep inside it (a bug, which must not be turned into a note)."""
+    tb, last = err.__traceback__, None
+    while tb is not None:
+        last, tb = tb, tb.tb_next
+    if last is None:
+        return True
+    package = Path(__file__).resolve().parents[1]
+    return Path(last.tb_frame.f_code.co_filename).resolve().is_relative_to(package)
+
+
+def _one_line(err: BaseException) -> str:
+    return " ".join(str(err).split()) or type(err).__name__
+
+
 def analyse(scan, *, harmonics=(1, 2), harmonic: int = 2, drift="per-turn", errors="turns",
             limits=DEFAULT_LIMITS, confidence_level: float = 0.95, rng=None, apparatus=None, site=None,
             velocity=None, speed_m_s: float | None = None, bootstrap_replicates: int = 10_000,
-            progress: bool | None = None) -> RunAnalysis:
+            progress: bool | None = None, aux=None) -> RunAnalysis:
     """Fit ``scan``, put limits on harmonic ``harmonic`` by each method in ``limits``, and, when a
     hypothesis is given (``speed_m_s`` and/or ``velocity``), compute the expected signal and the
     expected/bound ratio.  ``drift`` and ``errors`` are passed to :func:`nullfit.fit_scan`
-    (which takes ``"poly:3"``, ``"spline:2"``, ``"hac:12"``, ``"blocks:5"``).  ``rng`` seeds every random step; the seed is
-    recorded (the bootstrap gets a child seed, also recorded in its `Limit`)."""
+    (which takes ``"poly:3"``, ``"spline:2"``, ``"hac:12"``, ``"blocks:5"``), and so is ``aux``
+    (auxiliary columns of the scan to regress on).  ``rng`` seeds every random step; the seed is
+    recorded (the bootstrap gets a child seed, also recorded in its `Limit`).
+
+    A limit method that cannot run on these data (too few turns for the bootstrap, …) is left
+    out with its reason in ``RunAnalysis.failed``; only when every requested method fails is
+    an `AnalysisError` raised, naming each reason."""
     from ..fitting.fit import fit_scan
     from ..limits import amplitude_limit, detection_significance
 
@@ -239,20 +333,40 @@ def analyse(scan, *, harmonics=(1, 2), harmonic: int = 2, drift="per-turn", erro
         _, seed = make_rng(rng)
     s_boot, s_sig = child_seeds(seed, 2)
 
-    fit = fit_scan(scan, harmonics=ks, drift=drift, errors=errors)
+    fit_kw: dict[str, Any] = {}
+    if aux:
+        fit_kw["aux"] = [aux] if isinstance(aux, str) else list(aux)
+    fit = fit_scan(scan, harmonics=ks, drift=drift, errors=errors, **fit_kw)
     est = fit.harmonic(harmonic)
-    if "bootstrap" in methods and est.turns is None:
-        raise AnalysisError("the bootstrap needs per-turn coefficients: use errors='turns' or errors='blocks:B'")
-    out = {}
+    out: dict[str, Any] = {}
+    failed: dict[str, str] = {}
     for m in methods:
+        if m == "bootstrap" and est.turns is None:
+            failed[m] = "the bootstrap needs per-turn coefficients: use errors='turns' or errors='blocks:B'"
+            continue
         opts: dict[str, Any] = {}
         if m == "bootstrap":
             opts["replicates"] = bootstrap_replicates
             if progress is not None:
                 opts["progress"] = progress
-        out[m] = amplitude_limit(est, method=m, confidence_level=cl, rng=s_boot if m == "bootstrap" else None,
-                                 **opts)
-    sig = detection_significance(est, rng=s_sig) if methods else None
+        try:
+            out[m] = amplitude_limit(est, method=m, confidence_level=cl,
+                                     rng=s_boot if m == "bootstrap" else None, **opts)
+        except ValueError as err:  # AnalysisError included; a third-party ValueError is a bug: re-raise
+            if not _raised_by_nullfit(err):
+                raise
+            failed[m] = _one_line(err)
+    if methods and not out:
+        raise AnalysisError("; ".join(f"{m}: {why}" for m, why in failed.items()))
+    notes: list[str] = []
+    sig = None
+    if methods:
+        try:
+            sig = detection_significance(est, rng=s_sig)
+        except ValueError as err:
+            if not _raised_by_nullfit(err):
+                raise
+            notes.append(f"no detection p-value: {_one_line(err)}")
 
     expected = app = None
     if hypothesis:
@@ -269,6 +383,6 @@ def analyse(scan, *, harmonics=(1, 2), harmonic: int = 2, drift="per-turn", erro
     settings = {"harmonics": list(ks), "limit_harmonic": harmonic, "drift": fit.drift, "errors": fit.errors,
                 "confidence_level": cl, "limits": list(methods),
                 "hypothesis": None if expected is None else expected.hypothesis_label,
-                "speed_m_s": speed_m_s}
+                "speed_m_s": speed_m_s, "aux": list(fit_kw.get("aux", []))}
     return RunAnalysis(scan=scan, fit=fit, harmonic=harmonic, limits=out, significance=sig, expected=expected,
-                       apparatus=app, seed=seed, settings=settings)
+                       apparatus=app, seed=seed, settings=settings, failed=failed, notes=tuple(notes))

@@ -10,14 +10,15 @@ from __future__ import annotations
 
 import argparse
 import sys
+import warnings
 from pathlib import Path
 
-from . import compare, demo, fit, info, report
+from . import compare, demo, fit, info, report, simulate
 from .options import EXIT_BAD_INPUT, UsageError
+from .wording import one_line, show_warning, to_flags
 
 #: Sub-commands in the order ``--help`` lists them.
-COMMANDS = {"demo": demo, "info": info, "fit": fit, "compare": compare, "report": report}
-
+COMMANDS = {"demo": demo, "info": info, "fit": fit, "compare": compare, "report": report, "simulate": simulate}
 
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(
@@ -45,14 +46,18 @@ def main(argv=None) -> int:
         parser.print_help()
         return 0
     try:
-        return COMMANDS[args.command].run(args)
-    except (UsageError, FileExistsError, FileNotFoundError, IsADirectoryError, PermissionError) as err:
-        print(f"nullfit: {one_line(err)}", file=sys.stderr)
+        with warnings.catch_warnings():
+            warnings.simplefilter("default")  # every distinct warning once, as one line
+            warnings.showwarning = show_warning
+            return COMMANDS[args.command].run(args)
+    except (UsageError, FileExistsError, FileNotFoundError, IsADirectoryError, NotADirectoryError,
+            PermissionError) as err:
+        print(f"nullfit: {to_flags(one_line(err))}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except ValueError as err:  # ScanError and AnalysisError are ValueErrors; so are nullfit's option checks
         if not raised_by_nullfit(err):
             raise  # a ValueError from inside a library is a bug, not bad input: keep its traceback
-        print(f"nullfit: {one_line(err)}", file=sys.stderr)
+        print(f"nullfit: {to_flags(one_line(err))}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except BrokenPipeError:  # pragma: no cover - e.g. `nullfit fit ... | head`
         return 0
@@ -71,11 +76,4 @@ def raised_by_nullfit(err: BaseException) -> bool:
     return Path(last.tb_frame.f_code.co_filename).resolve().is_relative_to(package)
 
 
-def one_line(err: BaseException) -> str:
-    if isinstance(err, OSError) and err.filename is not None and err.strerror:
-        return f"{err.filename}: {err.strerror}"
-    text = str(err).strip() or type(err).__name__
-    return " ".join(text.split())
-
-
-__all__ = ["main", "build_parser", "COMMANDS", "UsageError", "EXIT_BAD_INPUT"]
+__all__ = ["main", "build_parser", "COMMANDS", "UsageError", "EXIT_BAD_INPUT", "to_flags", "one_line"]
