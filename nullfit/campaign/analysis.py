@@ -242,8 +242,11 @@ class RunAnalysis(Described):
             lrows = []
             for m, lim in self.limits.items():
                 if getattr(lim, "empty", False):
-                    val = f"empty: {empty_reason(lim)}"
-                elif lim.lower not in (None, 0.0) and m == "feldman-cousins":
+                    why = empty_reason(lim)
+                    lrows.append((f"{m} {lim.confidence_level * 100:g} %",
+                                  why if why.lower().startswith("empty") else f"empty set: {why}", ""))
+                    continue
+                if lim.lower not in (None, 0.0) and m == "feldman-cousins":
                     val = (f"[{lim.lower:.4g}, {lim.upper:.4g}] (two-sided; peak-to-peak "
                            f"[{peak_to_peak(lim.lower):.4g}, {peak_to_peak(lim.upper):.4g}])")
                 else:
@@ -350,12 +353,17 @@ def analyse(scan, *, harmonics=(1, 2), harmonic: int = 2, drift="per-turn", erro
             if progress is not None:
                 opts["progress"] = progress
         try:
-            out[m] = amplitude_limit(est, method=m, confidence_level=cl,
-                                     rng=s_boot if m == "bootstrap" else None, **opts)
+            lim = amplitude_limit(est, method=m, confidence_level=cl,
+                                  rng=s_boot if m == "bootstrap" else None, **opts)
         except ValueError as err:  # AnalysisError included; a third-party ValueError is a bug: re-raise
             if not _raised_by_nullfit(err):
                 raise
             failed[m] = _one_line(err)
+            continue
+        if not lim.empty and (lim.upper is None or not np.isfinite(lim.upper)):
+            failed[m] = f"the method returned no finite bound at confidence level {cl:g}"
+            continue
+        out[m] = lim
     if methods and not out:
         raise AnalysisError("; ".join(f"{m}: {why}" for m, why in failed.items()))
     notes: list[str] = []

@@ -32,6 +32,8 @@ PHRASES = (
     ("or pass nullfit.demodulate(scan)", ""),
     ("the manifest [time] start_utc", "--start-utc"),
     ("pass turns=(N, 2) array of (c, s)", "use --errors turns"),
+    ("name them with aux=[...] to regress the signal on them",
+     "name them with --aux COL[,COL] to regress the signal on them"),
     ("although None [columns] aux lists it", "although --aux lists it"),
     ("although None [columns] aux lists", "although --aux lists"),
 )

@@ -99,14 +99,15 @@ def plot_plane(fit_or_estimate, harmonic: int = 2, *, confidence_level: float = 
         if k != 2:
             raise ValueError("an expected signal predicts the 2θ term: use harmonic=2")
         R = float(expected.amplitude)
+        hyp = getattr(expected, "hypothesis_label", None) or expected.hypothesis  # words, not the spec code
         if getattr(expected, "coherent_c2", None) is not None:
             ax.plot([expected.coherent_c2], [expected.coherent_s2], "*", ms=13, color=st.RUST, mec="white",
                     mew=0.6, zorder=6, gid="plane-predicted",
-                    label=(f"predicted ({expected.hypothesis}): A₂ = {st.number(R)} {st.unit_text(unit)}, "
+                    label=(f"predicted ({hyp}): A₂ = {st.number(R)} {st.unit_text(unit)}, "
                            f"φ₂ = {expected.coherent_phase_deg:.0f}°"))
         else:
             circ = Circle((0, 0), R, fill=False, edgecolor=st.RUST, lw=1.4, ls="--", zorder=3,
-                          label=f"predicted amplitude ({expected.hypothesis}): A₂ = {st.number(R)} "
+                          label=f"predicted amplitude ({hyp}): A₂ = {st.number(R)} "
                                 f"{st.unit_text(unit)}, phase unknown")
             circ.set_gid("plane-predicted")
             ax.add_patch(circ)

@@ -114,8 +114,8 @@ def plot_folded(scan, fit, *, bins: int = 16, polar: bool = False, harmonic: int
     bins : int
         Number of angle bins over one turn.
     polar : bool
-        Draw on a polar Axes (radius = signal − drift, offset so that the inner edge is the
-        lowest value; the zero level is drawn as a circle).  ``ax`` must then be polar or None.
+        Draw on a polar Axes (radius = signal − drift + an offset, so that no radius is negative
+        and the inner edge lies below the lowest value; the zero level is drawn as a circle).  ``ax`` must then be polar or None.
     harmonic : int
         The term drawn on its own (default 2θ); must be among the fitted harmonics.
     ax : matplotlib Axes, optional
@@ -158,23 +158,24 @@ def plot_folded(scan, fit, *, bins: int = 16, polar: bool = False, harmonic: int
         st.legend(ax, above=True, ncol=1)
         return ax
 
-    # polar: radius r = value − r0 with the centre at r0 below the lowest value
+    # polar: radius r = value − r0 ≥ 0 with the centre at r0 below the lowest value (a radius is never
+    # negative); the level "signal − drift = 0" is the circle r = −r0
     lo = np.nanmin(np.r_[f.mean - np.nan_to_num(f.sem), full, term])
     hi = np.nanmax(np.r_[f.mean + np.nan_to_num(f.sem), full, term])
     span = hi - lo if hi > lo else 1.0
-    r0 = lo - 0.25 * span
+    r0 = min(lo - 0.25 * span, 0.0)  # ≤ 0, so the zero circle (r = −r0) is always on the plot
     ax.set_theta_zero_location("N")
     ax.set_theta_direction(1)  # the table's positive sense, counterclockwise on the page
     th = np.deg2rad(grid)
-    ax.plot(th, np.zeros_like(th), color=st.STONE, lw=0.8, label="zero (drift removed)", zorder=1)
-    ax.errorbar(np.deg2rad(f.centers_deg), f.mean, yerr=f.sem, fmt="o", ms=3.5, color=st.INK, mfc="white",
+    ax.plot(th, np.full_like(th, -r0), color=st.STONE, lw=0.8, label="zero (drift removed)", zorder=1)
+    ax.errorbar(np.deg2rad(f.centers_deg), f.mean - r0, yerr=f.sem, fmt="o", ms=3.5, color=st.INK, mfc="white",
                 mew=1.0, elinewidth=1.0, capsize=1.5, label=lab_means, zorder=4)[0].set_gid("folded-means")
-    ax.plot(th, full, color=st.TEAL, lw=1.6, label=lab_full, gid="folded-fit", zorder=3)
-    ax.plot(th, term, color=st.RUST, lw=1.3, ls="--", label=lab_term, gid="folded-term", zorder=3)
-    ax.set_rlim(r0, hi + 0.12 * span)
+    ax.plot(th, full - r0, color=st.TEAL, lw=1.6, label=lab_full, gid="folded-fit", zorder=3)
+    ax.plot(th, term - r0, color=st.RUST, lw=1.3, ls="--", label=lab_term, gid="folded-term", zorder=3)
+    ax.set_rlim(0.0, hi - r0 + 0.12 * span)
     import matplotlib.ticker as mticker
 
-    e = st.exponent_for([lo, hi])
+    e = st.exponent_for([lo - r0, hi - r0])
     ax.yaxis.set_major_locator(mticker.MaxNLocator(4))
     ax.yaxis.set_major_formatter(st.scaled_formatter(e))
     ax.set_rlabel_position(101.25)  # between bin centres (multiples of 360°/bins for 16 bins)
@@ -184,7 +185,7 @@ def plot_folded(scan, fit, *, bins: int = 16, polar: bool = False, harmonic: int
     ax.set_xticks(np.deg2rad(np.arange(0, 360, 45)))
     ax.set_xticklabels([f"{a}°" for a in range(0, 360, 45)])
     ax.set_xlabel("table angle θ of arm 1 [deg], counterclockwise from the reference mark", fontsize=9)
-    ax.set_ylabel(f"radius: signal − drift [{st.scaled_unit(u, e)}]", fontsize=9, labelpad=24)
+    ax.set_ylabel(f"radius: signal − drift + {st.number(-r0)} [{st.scaled_unit(u, e)}]", fontsize=9, labelpad=24)
     st.tidy(ax)
     st.legend(ax, loc="upper center", bbox_to_anchor=(0.5, -0.12), ncol=1)
     return ax

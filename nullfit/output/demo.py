@@ -52,6 +52,7 @@ def run_demo(data=None, out=None, force: bool = False, seed: int = 20261201, pro
     from ..hypothesis.velocities import parse_velocity
     from ..reading.files import read_scan
     from .files import prepare_output_dir
+    from .wording import plain_summary
 
     folder = demo_data_dir(data)
     singles, campaign = demo_scans(folder)
@@ -64,31 +65,38 @@ def run_demo(data=None, out=None, force: bool = False, seed: int = 20261201, pro
           f"(see {folder / 'README.md'}); nothing here was measured.\n")
     seeds = child_seeds(seed, len(singles) + 2)
     analyses = []
+    print(f"Single scans — hypothesis: classical wind at {DEMO_SPEED_M_S:.0f} m/s as a fixed in-plane wind\n")
     for path, s in zip(singles, seeds):
         scan = read_scan(path)
         a = analyse(scan, rng=s, speed_m_s=DEMO_SPEED_M_S, progress=progress)
         analyses.append(a)
-        print(a.summary().as_text())
+        print(plain_summary(a.summary()).as_text())
         print()
 
     table = lab = sky = sky_limits = None
     if campaign:
-        print(f"Campaign: {len(campaign)} runs — classical wind at {DEMO_SPEED_M_S:.0f} m/s, fixed in-plane wind\n")
-        table = compare_runs(campaign, speed_m_s=DEMO_SPEED_M_S, rng=seeds[-2])
+        print(f"Campaign of {len(campaign)} runs (a): run table — hypothesis: classical wind at "
+              f"{DEMO_SPEED_M_S:.0f} m/s as a fixed in-plane wind\n")
+        table = compare_runs(campaign, speed_m_s=DEMO_SPEED_M_S, rng=seeds[-2], progress=progress)
         cols = ["run", "date_utc", "expected_amplitude", "expected_peak_to_peak", "upper_amplitude",
                 "upper_peak_to_peak", "ratio_expected_to_bound", "speed_bound_m_s"]
         print(table[cols].to_string(index=False, float_format=lambda v: f"{v:.4g}"))
-        print("(amplitudes and peak-to-peak values in fringe; upper limits: feldman-cousins, 95 %)\n")
+        print(f"(amplitudes and peak-to-peak values in {table['unit'].iloc[0]}; upper limits: feldman-cousins, "
+              "95 %)\n")
         runs = [read_scan(p) for p in campaign]
         orbital = parse_velocity("orbital")
         cseeds = child_seeds(seeds[-1], len(runs))
         sky_runs = [analyse(r, rng=cs, velocity=orbital, limits=("feldman-cousins",)) for r, cs in zip(runs, cseeds)]
         lab = combine_lab(sky_runs)
-        print(lab.summary().as_text())
+        print("Campaign (b): lab-frame combination — no hypothesis: the runs' (c₂, s₂) averaged in the table "
+              "frame\n")
+        print(plain_summary(lab.summary()).as_text())
         print()
         sky = combine_sky(sky_runs)
         sky_limits = sky.limits_frame(0.95)
-        print(sky.summary().as_text())
+        print("Campaign (c): sky-frame scale fit — hypothesis: Earth's orbital velocity, projected on the table "
+              "at the invented site and each run's times\n")
+        print(plain_summary(sky.summary()).as_text())
         print(sky_limits.to_string(index=False, float_format=lambda v: f"{v:.4g}"))
         print()
 
@@ -126,11 +134,16 @@ def _write_outputs(outdir: Path, analyses, table, lab, sky, sky_limits, inputs, 
         table.to_csv(outdir / TABLE, index=False)
     for name, _, fig in figs:
         fig.savefig(outdir / name, dpi=130, bbox_inches="tight")
-    sections = [(f"Run {a.run_id}", [a, a.limits_frame()]) for a in analyses]
+    sections = [(f"Run {a.run_id} — classical wind at {DEMO_SPEED_M_S:.0f} m/s, fixed in-plane wind",
+                 [a, a.limits_frame()]) for a in analyses]
     if table is not None:
-        sections.append(("Campaign: run table", [table]))
-        sections.append(("Campaign: combinations", [lab, sky, sky_limits]))
-    dropped = {a.run_id: a.fit.dropped_rows for a in analyses}
+        sections.append((f"Campaign (a): run table — classical wind at {DEMO_SPEED_M_S:.0f} m/s, fixed in-plane "
+                         "wind", [table]))
+        sections.append(("Campaign (b): lab-frame combination — no hypothesis", [lab]))
+        sections.append(("Campaign (c): sky-frame scale fit — Earth's orbital velocity at the invented site",
+                         [sky, sky_limits]))
+    dropped = {a.run_id: f"{a.scan.dropped_rows} dropped while reading, {a.fit.excluded_rows} in partial turns"
+               for a in analyses}
     prov = provenance(inputs, settings={"speed_m_s": DEMO_SPEED_M_S, **dict(main.settings)},
                       seeds={"demo": seed, **{a.run_id: a.seed for a in analyses}}, dropped=dropped)
     html = render_report("nullfit demo report (invented, synthetic data)", sections,

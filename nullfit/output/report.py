@@ -11,6 +11,7 @@ import html
 import io
 from typing import Any
 
+from .wording import plain_summary
 
 
 _STYLE = """
@@ -36,7 +37,11 @@ def figure_to_png_base64(fig, dpi: int = 110) -> str:
 
 
 def _block(item) -> str:
-    """HTML for one report item: a Described/Summary, a DataFrame, or plain text."""
+    """HTML for one report item: a Described/Summary, a DataFrame, or plain text (in user wording)."""
+    if hasattr(item, "summary") and callable(item.summary) and not hasattr(item, "to_html"):
+        return plain_summary(item.summary()).as_html()
+    if hasattr(item, "as_html"):
+        return plain_summary(item).as_html()
     if hasattr(item, "_repr_html_") and not hasattr(item, "to_html"):
         return item._repr_html_()
     if hasattr(item, "to_html"):  # pandas DataFrame: escape=True is pandas' default
@@ -49,9 +54,12 @@ def _prov_html(prov: dict) -> str:
     rows = []
     for key in ("created_utc",):
         rows.append(f"<tr><th>{e(key)}</th><td>{e(str(prov.get(key)))}</td></tr>")
+    labels = {"versions": "version", "settings": "setting", "seeds": "seed", "dropped_rows": "rows"}
     for group in ("versions", "settings", "seeds", "dropped_rows"):
         for k, v in prov.get(group, {}).items():
-            rows.append(f"<tr><th>{e(group)}: {e(str(k))}</th><td><code>{e(str(v))}</code></td></tr>")
+            if isinstance(v, dict):
+                v = ", ".join(f"{kk}: {vv}" for kk, vv in v.items()) or "none"
+            rows.append(f"<tr><th>{e(labels[group])}: {e(str(k))}</th><td><code>{e(str(v))}</code></td></tr>")
     for f in prov.get("inputs", []):
         rows.append(f"<tr><th>input</th><td><code>{e(f['path'])}</code><br>SHA-256 <code>{e(f['sha256'])}</code>"
                     f" ({f['bytes']} bytes)</td></tr>")

@@ -40,8 +40,12 @@ def scan_report(a, *, inputs=(), settings=None) -> str:
     from .report import render_report
 
     figs = scan_figures(a)
-    prov = provenance(inputs, settings={**dict(a.settings), **dict(settings or {})}, seeds={"run": a.seed},
-                      dropped={"read": dict(a.scan.dropped), "partial_turn_rows": a.fit.excluded_rows})
+    facts = a.facts
+    dropped = {"dropped while reading": facts["dropped_rows"],
+               **{f"dropped while reading ({why})": c for why, c in facts["dropped"].items()},
+               "in partial turns (not fitted)": facts["partial_turn_rows"]}
+    prov = provenance(inputs, settings={**dict(a.settings), **dict(settings or {})},
+                      seeds={"run": a.seed}, dropped=dropped)
     items = [a.scan.summary(), a]
     if a.limits:
         items.append(a.limits_frame())

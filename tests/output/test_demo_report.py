@@ -55,7 +55,7 @@ def test_report_command(tmp_path):
     html = target.read_text(encoding="utf-8")
     assert hashlib.sha256((DEMO / "injected_2theta.csv").read_bytes()).hexdigest() in html
     assert hashlib.sha256((DEMO / "injected_2theta.toml").read_bytes()).hexdigest() in html
-    assert "seeds: run" in html and "dropped_rows" in html
+    assert "seed: run" in html and "rows: dropped while reading" in html
     r2 = run_cli("report", DEMO / "injected_2theta.csv", "-o", target)
     assert r2.returncode == 2
     # never over an input, even with --force
