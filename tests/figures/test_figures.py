@@ -368,3 +368,12 @@ def test_expected_vs_bound_values_and_ratio():
     mixed = table.assign(unit=["fringe", "fractional", "fringe"])
     with pytest.raises(ValueError, match="different signal units"):
         P.plot_expected_vs_bound(mixed)
+
+
+def test_polar_radius_is_never_negative(demo):
+    ax = P.plot_folded(demo["scan"], demo["fit"], polar=True)
+    lo, hi = ax.get_ylim()
+    assert lo >= 0 and hi > lo
+    for line in ax.get_lines():
+        r = np.asarray(line.get_ydata(), dtype=float)
+        assert np.all(r[np.isfinite(r)] >= 0), line.get_gid()
