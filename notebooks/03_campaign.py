@@ -61,15 +61,15 @@ child = rng.integers(2**62, size=len(scans))  # one recorded seed per run
 runs = [nf.analyse(s, velocity="orbital", speed_m_s=30_000.0, limits=("feldman-cousins",), rng=int(seed))
         for s, seed in zip(scans, child)]
 table = nf.compare_runs(runs)
-cols = ["run", "date_utc", "n_turns", "dropped_rows", "expected_amplitude", "upper_amplitude",
+cols = ["run", "date_utc", "n_turns", "dropped_rows", "partial_turn_rows", "expected_amplitude", "upper_amplitude",
         "expected_peak_to_peak", "upper_peak_to_peak", "ratio_expected_to_bound", "speed_bound_m_s"]
 table[cols]
 
 # %% [markdown]
 # Amplitude and peak-to-peak sit side by side: the expected column and the bound column of the
 # same kind give the same ratio. C05 lacks 180 s of readings (a camera dropout); the two
-# partial turns on either side of the gap are left out and their 48 readings counted in
-# `dropped_rows`, never silently lost. Its four ±0.08 fringe outliers are not removed: they
+# partial turns on either side of the gap are left out of the fit and their 48 readings counted in
+# `partial_turn_rows` (`dropped_rows` counts the rows the reader dropped), never silently lost. Its four ±0.08 fringe outliers are not removed: they
 # widen the turn scatter, and so the bound.
 #
 # On a log scale every run excludes the hypothesis, by factors of 50 to 200:

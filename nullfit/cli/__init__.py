@@ -13,12 +13,26 @@ import sys
 import warnings
 from pathlib import Path
 
-from . import compare, demo, fit, info, report, simulate
+from . import compare
+from . import demo
+from . import fit
+from . import info
+from . import report
+from . import simulate
 from .options import EXIT_BAD_INPUT, UsageError
 from .wording import one_line, show_warning, to_flags
 
-#: Sub-commands in the order ``--help`` lists them.
-COMMANDS = {"demo": demo, "info": info, "fit": fit, "compare": compare, "report": report, "simulate": simulate}
+#: Sub-commands in the order ``--help`` lists them (one line each, so that a new sub-command is a
+#: one-line addition here and one import above).
+COMMANDS = {
+    "demo": demo,
+    "info": info,
+    "fit": fit,
+    "compare": compare,
+    "report": report,
+    "simulate": simulate,
+}
+
 
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(
