@@ -54,9 +54,11 @@ def run(args) -> int:
         cl = table["confidence_level"].dropna()
         print(f"(amplitudes in each row's unit; upper limits: {methods[0].strip()}"
               + (f", {cl.iloc[0] * 100:g} %" if len(cl) else "") + "; expected: classical wind hypothesis)")
+        from .wording import to_flags
+
         for run_id, note in zip(table["run"], table.get("note", [])):
-            if note:
-                print(f"note: {run_id}: {note}")
+            if isinstance(note, str) and note:
+                print(f"note: {run_id}: {to_flags(note)}")
     return 0
 
 

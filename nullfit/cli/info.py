@@ -32,5 +32,7 @@ def run(args) -> int:
     if any("gap" in n for n in own):  # the reader reports gaps itself
         mine = tuple(n for n in mine if not n.startswith("gap in time"))
     notes = tuple(dict.fromkeys(own + mine))
-    print(Summary(s.title, rows, notes, s.sections).as_text())
+    from .wording import to_user_text
+
+    print(to_user_text(Summary(s.title, rows, notes, s.sections).as_text()))
     return 0
