@@ -99,7 +99,7 @@ def plot_quadratures(days, curve, quadrature: str = "Cs2", ax=None):
 
 def plot_sky_bounds(table, ax=None):
     """Bounds on ``|x|`` for every parameter: this campaign's central interval and the published
-    rows beside it, on a log axis.
+    rows beside it (open grey markers: only the order of σ is recorded), on a log axis.
 
     Parameters
     ----------
@@ -116,24 +116,25 @@ def plot_sky_bounds(table, ax=None):
     if not params:
         raise ValueError("the bounds table is empty")
     ypos = {p: i for i, p in enumerate(params[::-1])}
-    ax = st.new_axes(ax, figsize=(6.8, 1.2 + 0.45 * len(params)))
+    pub = table[table["source"] != "this campaign"]
+    sources = list(dict.fromkeys(pub["source"]))
+    step = 0.7 / (len(sources) + 1)
+    ax = st.new_axes(ax, figsize=(7.2, 1.6 + (0.3 + 0.1 * len(sources)) * len(params)))
     own = table[table["source"] == "this campaign"]
     ax.plot(own["bound_abs"], [ypos[p] for p in own["parameter"]], ls="none", marker="v", ms=8, color=st.TEAL,
             mec="white", mew=0.6, label="this campaign (|x| bound)", gid="sky-bound-campaign", zorder=4)
-    pub = table[table["source"] != "this campaign"]
-    sources = list(dict.fromkeys(pub["source"]))
     for j, src in enumerate(sources):
         f = pub[pub["source"] == src]
         order = f["kind"].iloc[0] == "sigma_order"
-        ax.plot(f["bound_abs"], [ypos[p] + 0.12 * (j + 1) / max(len(sources), 1) for p in f["parameter"]],
+        ax.plot(f["bound_abs"], [ypos[p] - step * (j + 1) for p in f["parameter"]],
                 ls="none", marker=_MARKERS[j % len(_MARKERS)], ms=5.5, color=st.STONE if order else st.RUST,
-                mfc="none" if order else None, label=src + (" (order of σ, from memory)" if order else ""),
+                mfc="none" if order else None, label=src + (" (order of σ)" if order else ""),
                 gid="sky-bound-published", zorder=3)
     ax.set_xscale("log")
     ax.set_yticks(list(ypos.values()))
     ax.set_yticklabels(list(ypos.keys()))
-    ax.set_ylim(-0.6, len(params) - 0.3)
-    ax.set_xlabel("bound on |parameter| (dimensionless)")
+    ax.set_ylim(-0.85, len(params) - 0.5)
+    ax.set_xlabel("bound on |parameter| at the confidence level of the campaign (dimensionless)")
     st.tidy(ax, grid="x")
-    st.legend(ax, loc="lower right", fontsize=6.5)
+    st.legend(ax, above=True, ncol=2, fontsize=7)
     return ax
