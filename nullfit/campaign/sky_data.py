@@ -271,10 +271,12 @@ WEIGHTS = ("segment", "turn", "equal")
 def turn_weights(data: SkyData, seg: np.ndarray, kind: str = "segment") -> np.ndarray:
     """Relative weights of the turns (normalised to mean 1).
 
-    ``"segment"``: 1/s² with s² the scatter of B and C about their means in the turn's segment
-    (pooled; segments with fewer than 3 turns take the median s² of the others) — robust to
-    per-turn error estimates with few degrees of freedom.  ``"turn"``: 1/var from each turn's
-    white-noise errors.  ``"equal"``: all 1.
+    ``"segment"``: 1/s² with s² the noise variance of the turn's segment from the differences of
+    consecutive turns, ``s² = Σ (Δy)² / (2 (n − 1))`` pooled over B and C (the successive-difference
+    estimator: insensitive to the slow sidereal signal and to the offset, so that the weights do not
+    depend on the signal; segments with fewer than 3 turns take the median s² of the others) —
+    robust to per-turn error estimates with few degrees of freedom.  ``"turn"``: 1/var from each
+    turn's white-noise errors.  ``"equal"``: all 1.
     """
     if kind == "equal":
         w = np.ones(data.n_turns)
@@ -282,15 +284,18 @@ def turn_weights(data: SkyData, seg: np.ndarray, kind: str = "segment") -> np.nd
         w = 1.0 / data.var
     elif kind == "segment":
         G = int(seg.max()) + 1
-        n = np.bincount(seg, minlength=G).astype(float)
+        order = np.lexsort((data.time_s, seg))
+        s_ord = seg[order]
+        same = s_ord[1:] == s_ord[:-1]
         ss = np.zeros(G)
         for y in (data.B, data.C):
-            mean = np.bincount(seg, weights=y, minlength=G) / np.maximum(n, 1)
-            ss += np.bincount(seg, weights=(y - mean[seg]) ** 2, minlength=G)
+            d = np.diff(y[order])
+            ss += np.bincount(s_ord[1:][same], weights=d[same] ** 2, minlength=G)
+        n = np.bincount(seg, minlength=G).astype(float)
         ok = n >= 3
         if not ok.any():
             raise AnalysisError("weights='segment' needs segments of at least 3 turns; use weights='turn'")
-        s2 = np.where(ok, ss / np.maximum(2.0 * (n - 1.0), 1.0), np.nan)
+        s2 = np.where(ok, ss / np.maximum(4.0 * (n - 1.0), 1.0), np.nan)  # 2 channels × 2 (n − 1)
         s2 = np.where(ok & (s2 > 0), s2, np.nanmedian(s2[ok]))
         w = 1.0 / s2[seg]
     else:

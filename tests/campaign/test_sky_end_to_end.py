@@ -215,7 +215,7 @@ def test_calibration_study_end_to_end(capsys):
     # Per-reading logs (AR(1) noise, drift, random walk, lab-fixed 2θ per run), demodulated, fitted
     # by the global route (C₀, B₀ nuisance: seven parameters).
     rows = []
-    for i in range(60):
+    for i in range(100):
         table, _ = _per_reading("scattered", 80, seed=50_000 + i)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
@@ -224,5 +224,5 @@ def test_calibration_study_end_to_end(capsys):
                       fit.interval(n).lower <= E2E_TRUTH[n] <= fit.interval(n).upper) for n in fit.names])
     arr = np.array(rows, dtype=float)
     with capsys.disabled():
-        print("\nend-to-end calibration: 60 campaigns of 80 five-hour runs scattered over a year (per-reading logs)")
+        print("\nend-to-end calibration: 100 campaigns of 80 five-hour runs scattered over a year (per-reading logs)")
         _check_calibration(fit.names, {"global": arr[:, :, 0]}, {"global": arr[:, :, 1].astype(bool)}, report=True)

@@ -88,17 +88,30 @@ def test_days_route_matches_numpy_day_fits_and_statsmodels_cluster_covariance(sk
     assert fit.cov == pytest.approx(ref_cov, rel=1e-6, abs=1e-9 * np.abs(ref_cov).max())
 
 
-def test_segment_weights_are_the_inverse_within_segment_scatter(sky_turns):
-    # Reference: numpy, segment by segment (pooled variance of B and C about their segment means).
+def test_segment_weights_come_from_successive_differences_and_ignore_the_signal(sky_turns):
+    # Reference: numpy, segment by segment: s² = Σ (Δy)² / (2 (n − 1)) of consecutive turns, pooled
+    # over B and C (the von Neumann successive-difference estimator of a white-noise variance).
     table, _ = sky_turns("days", n_runs=12, turn_period_s=1800.0, seed=1)
     data = sky_data(table)
     w = turn_weights(data, data.window, "segment")
     ref = np.empty(data.n_turns)
     for g in np.unique(data.window):
-        m = data.window == g
-        ss = np.sum((data.B[m] - data.B[m].mean()) ** 2) + np.sum((data.C[m] - data.C[m].mean()) ** 2)
-        ref[m] = 1.0 / (ss / (2 * (m.sum() - 1)))
+        m = np.flatnonzero(data.window == g)
+        m = m[np.argsort(data.time_s[m])]
+        ss = np.sum(np.diff(data.B[m]) ** 2) + np.sum(np.diff(data.C[m]) ** 2)
+        ref[m] = 1.0 / (ss / (4 * (m.size - 1)))
     assert w == pytest.approx(ref / ref.mean(), rel=1e-10)
+    # the same noise with a sidereal signal as large as the per-turn noise: the weights barely move
+    # (a scatter about the segment mean would count the signal as noise and down-weight the runs
+    # where it varies most, biasing the estimates)
+    from conftest import SKY_TRUTH
+
+    loud, _ = sky_turns("days", n_runs=12, seed=1, truth={k: 50 * v for k, v in SKY_TRUTH.items()})
+    quiet, _ = sky_turns("days", n_runs=12, seed=1, truth={})
+    wl = turn_weights(sky_data(loud), sky_data(loud).window, "segment")
+    wq = turn_weights(sky_data(quiet), sky_data(quiet).window, "segment")
+    assert np.abs(sky_data(loud).C - sky_data(quiet).C).std() > 0.5 * sky_data(quiet).C.std()
+    assert wl == pytest.approx(wq, rel=0.05)
 
 
 # ----------------------------------------------------------------------------- recovery and agreement
