@@ -70,7 +70,9 @@ def run(args) -> int:
         import pandas as pd
 
         print()
-        cols = ["parameter", "source", "bound_abs", "kind"]
-        with pd.option_context("display.width", 200, "display.max_colwidth", 48):
-            print(bounds[cols].to_string(index=False, float_format=lambda v: f"{v:.2g}"))
+        print(f"bounds on |parameter| at {fit.confidence_level:.0%} CL beside published results (the bundled "
+              "table holds orders of magnitude recalled from memory: not a source to cite)")
+        wide = bounds.pivot_table(index="parameter", columns="source", values="bound_abs", sort=False)
+        with pd.option_context("display.width", 250, "display.max_columns", 20):
+            print(wide.to_string(float_format=lambda v: f"{v:.2g}"))
     return 0
