@@ -81,12 +81,15 @@ class SkyData:
         return self.epoch_unix + 0.5 * float(self.time_s.min() + self.time_s.max())
 
     def segments(self, kind: str) -> np.ndarray:
-        """Segment index per turn: sidereal-day windows (``"day"``) or runs (``"run"``)."""
+        """Segment index per turn, numbered 0 … G−1 over the segments present: sidereal-day windows
+        (``"day"``) or runs (``"run"``)."""
         if kind == "day":
-            return self.window
-        if kind == "run":
-            return self.run
-        raise ValueError(f"segments must be 'day' or 'run', not {kind!r}")
+            ids = self.window
+        elif kind == "run":
+            ids = self.run
+        else:
+            raise ValueError(f"segments must be 'day' or 'run', not {kind!r}")
+        return np.unique(ids, return_inverse=True)[1].ravel().astype(np.int64)
 
     def subset(self, mask) -> "SkyData":
         """The turns where ``mask`` is True (segments renumbered; runs and sites kept)."""

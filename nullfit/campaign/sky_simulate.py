@@ -36,6 +36,8 @@ def simulate_sky_turns(model: str, params, *, site, apparatus, schedule, turn_pe
     from .. import __version__
 
     params = params if isinstance(params, SkyParameters) else SkyParameters(model, tuple(dict(params or {}).items()))
+    if params.model != str(model).strip().lower():
+        raise ValueError(f"parameters are for model {params.model!r}, not {model!r}")
     schedule = tuple(schedule)
     if not schedule or not all(isinstance(r, RunSlot) for r in schedule):
         raise ValueError("schedule must be a non-empty sequence of RunSlot (see campaign_schedule)")

@@ -299,3 +299,16 @@ def test_result_renders_and_reports_its_intervals(sky_turns):
     import json
 
     json.loads(fit.to_json(allow_nan=False))
+
+
+def test_a_subset_counts_only_the_segments_it_holds(sky_turns):
+    # Leaving runs out must not leave empty segments behind: an empty segment would enter the
+    # jackknife as a replicate equal to the full estimate and shrink the errors.
+    table, _ = sky_turns("days", n_runs=30, turn_period_s=1800.0, seed=9)
+    data = sky_data(table)
+    keep = data.run % 2 == 0
+    sub = data.subset(keep)
+    for seg in ("run", "day"):
+        fit = fit_sky(sub, "sme", segments=seg)
+        assert fit.n_segments == 15 and fit.dof == 14
+    assert dict(sub.dropped)["left out by selection"] == int((~keep).sum())
