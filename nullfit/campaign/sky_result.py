@@ -102,6 +102,16 @@ class SkyFit(Described):
     notes: tuple[str, ...] = ()
     seed: int | None = None
 
+    def __post_init__(self):
+        for name in ("estimate", "cov", "cov_white", "alias"):
+            v = getattr(self, name)
+            if v is not None:
+                a = np.array(v, dtype=float)
+                a.setflags(write=False)
+                object.__setattr__(self, name, a)
+        if self.cov.shape != (len(self.names),) * 2 or self.estimate.shape != (len(self.names),):
+            raise ValueError("estimate and cov must match the estimated parameters")
+
     # ------------------------------------------------------------------ derived
     @property
     def all_names(self) -> tuple[str, ...]:
