@@ -30,9 +30,11 @@ def add_parser(sub) -> None:
     s.add_argument("--single-resonator", action="store_true",
                    help="one resonator turning against a fixed one (half the pair's signal)")
     s.add_argument("--cl", type=float, default=0.95, metavar="LEVEL", help="confidence level (default 0.95)")
-    s.add_argument("--bounds", nargs="?", const="bundled", default=None, metavar="CSV",
-                   help="print published bounds beside the campaign's (bundled table of orders of magnitude "
-                        "recalled from memory, or a CSV of the same columns)")
+    s.add_argument("--bounds", action="store_true",
+                   help="print published bounds beside the campaign's (the bundled table holds orders of "
+                        "magnitude recalled from memory)")
+    s.add_argument("--bounds-table", metavar="CSV", default=None,
+                   help="a CSV of published bounds to use with --bounds (columns: docs/sky-analysis.md)")
     s.add_argument("--json", action="store_true", help="print one JSON object on stdout")
 
 
@@ -46,6 +48,8 @@ def run(args) -> int:
         raise UsageError("--combined applies to --model sme")
     if args.route == "days" and args.segments != "day":
         raise UsageError("--route days works per sidereal day: drop --segments run")
+    if args.bounds_table is not None and not args.bounds:
+        raise UsageError("--bounds-table needs --bounds")
     table = load_turns(args.inputs)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", FitWarning)
@@ -55,10 +59,10 @@ def run(args) -> int:
     for w in caught:
         print(f"nullfit: warning: {' '.join(str(w.message).split())}", file=sys.stderr)
     bounds = None
-    if args.bounds is not None:
+    if args.bounds:
         from ..campaign.sky_bounds import bounds_table, published_sky_bounds
 
-        bounds = bounds_table(fit, published_sky_bounds(None if args.bounds == "bundled" else args.bounds))
+        bounds = bounds_table(fit, published_sky_bounds(args.bounds_table))
     if args.json:
         d = fit.to_dict()
         if bounds is not None:

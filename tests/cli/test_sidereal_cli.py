@@ -85,6 +85,15 @@ def test_rms_from_logs_and_text_output(tmp_path, capsys):
     assert np.array(d["correlation"]).shape == (1, 1)
     code, out, _ = run_main(capsys, *logs, "--model", "rms", "--bounds")
     assert code == 0 and "P_MM" in out and "Phys. Rev." in out
+    own = tmp_path / "mine.csv"
+    own.write_text("parameter,value,sigma,kind,confidence_level,year,span_days,experiment,reference,note\n"
+                   "P_MM,1e-10,5e-11,sigma,0.6827,2020,365,test,\"J. Test 1, 2 (2020)\",invented for a test\n",
+                   encoding="utf-8")
+    code, out, _ = run_main(capsys, *logs, "--model", "rms", "--bounds", "--bounds-table", own, "--json")
+    published = json.loads(out)["published"]
+    assert [r["source"] for r in published] == ["J. Test 1, 2 (2020)"] and published[0]["estimate"] == 1e-10
+    code, _, err = run_main(capsys, *logs, "--model", "rms", "--bounds-table", own)
+    assert code == 2 and "--bounds" in err
 
 
 def test_short_span_warns_on_one_line(tmp_path, sky_turns, capsys):
