@@ -80,12 +80,30 @@ _EXPORTS = {
     "combine_sky": "campaign.combine",
     "LabCombination": "campaign.combine",
     "ScaleFit": "campaign.combine",
+    # the sky: sidereal and annual analysis of a campaign into SME / RMS parameters
+    "fit_sky": "campaign.sky",
+    "SkyFit": "campaign.sky_result",
+    "published_sky_bounds": "campaign.sky_bounds",
+    "simulate_sky_turns": "campaign.sky_simulate",
+    "simulate_sky_campaign": "simulation.sky",
+    "campaign_schedule": "simulation.sky",
+    "inject_sky": "simulation.sky",
 }
 
-__all__ = sorted(_EXPORTS) + ["__version__"]
+# public subpackage aliases: ``nullfit.sidereal`` is ``nullfit.hypothesis.sidereal`` (the model)
+_MODULE_ALIASES = {"sidereal": "hypothesis.sidereal"}
+
+__all__ = sorted(_EXPORTS) + sorted(_MODULE_ALIASES) + ["__version__"]
 
 
 def __getattr__(name: str):
+    if name in _MODULE_ALIASES:
+        import sys
+
+        value = importlib.import_module(f".{_MODULE_ALIASES[name]}", __name__)
+        sys.modules.setdefault(f"{__name__}.{name}", value)  # later ``import nullfit.sidereal`` finds it
+        globals()[name] = value
+        return value
     try:
         module = _EXPORTS[name]
     except KeyError:

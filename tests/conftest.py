@@ -8,7 +8,12 @@
   ``nullfit.fitting`` (raw time powers, explicit per-turn columns, B-splines coefficient by
   coefficient) for comparisons with statsmodels;
 * ``loop_reference(scan, ...)`` → per-turn ``numpy.linalg.lstsq`` fits, the obvious
-  implementation of the per-turn demodulation.
+  implementation of the per-turn demodulation;
+* ``sky_turns(kind, n_runs, span_days, ...)`` → ``(TurnTable, SkyTruth)``: a simulated campaign's
+  per-turn table drawn from the sidereal model plus white noise, at the invented Brennmoor site with a
+  resonator pair logging ``(ν₁ − ν₂)/ν``; ``SKY_TRUTH`` an SME parameter set of a few σ of a year;
+* ``hotelling_p(fit, truth)`` → p-value of the estimates against the truth with the fit's covariance
+  (Hotelling T², the covariance estimated on ``fit.dof`` degrees of freedom).
 """
 
 import numpy as np
@@ -137,3 +142,56 @@ def reference_design():
 @pytest.fixture
 def loop_reference():
     return _loop_reference
+
+
+# ----------------------------------------------------------------------------- sky campaigns
+#: SME truth of the simulated campaigns: a few σ of a year-long campaign with sigma_turn = 1e-15.
+SKY_TRUTH = {"e_XY": 3e-17, "e_XZ": -2e-17, "e_YZ": 1e-17, "e_XX-YY": 4e-17, "e_ZZ": -3e-17, "o_XY": 2e-13,
+             "o_XZ": -1e-13, "o_YZ": 3e-13}
+
+
+def _sky_setup():
+    from nullfit.hypothesis.apparatus import Apparatus
+    from nullfit.hypothesis.site import Site
+
+    site = Site(58.391, 13.845, elevation_m=125.0, mark_azimuth_deg=23.5, table_sense="counterclockwise",
+                name="Brennmoor field station (INVENTED)")
+    return site, Apparatus(None, None, signal="fractional", readout_sign=-1, name="BOH-R (INVENTED)")
+
+
+def _sky_turns(kind="days", n_runs=36, span_days=365.0, *, truth=None, model="sme", sigma_turn=1e-15, lab_sigma=0.0,
+               turn_period_s=600.0, run_hours=None, seed=0, schedule_seed=3, site=None, apparatus=None, pair=True):
+    from nullfit.campaign.sky_simulate import simulate_sky_turns
+    from nullfit.simulation.sky import campaign_schedule
+
+    s0, a0 = _sky_setup()
+    sch = campaign_schedule(kind, n_runs=n_runs, span_days=span_days, run_hours=run_hours, rng=schedule_seed)
+    truth = SKY_TRUTH if truth is None else truth
+    return simulate_sky_turns(model, truth, site=site or s0, apparatus=apparatus or a0, schedule=sch,
+                              turn_period_s=turn_period_s, sigma_turn=sigma_turn, lab_sigma=lab_sigma, rng=seed,
+                              pair=pair)
+
+
+def _hotelling_p(fit, truth):
+    from scipy import stats
+
+    d = np.array([fit[n][0] - truth.get(n, 0.0) for n in fit.names])
+    t2 = float(d @ np.linalg.solve(fit.cov, d))
+    p, nu = len(d), fit.dof
+    f = (nu - p + 1) / (nu * p) * t2
+    return float(stats.f.sf(f, p, nu - p + 1))
+
+
+@pytest.fixture
+def sky_setup():
+    return _sky_setup
+
+
+@pytest.fixture
+def sky_turns():
+    return _sky_turns
+
+
+@pytest.fixture
+def hotelling_p():
+    return _hotelling_p

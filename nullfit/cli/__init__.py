@@ -18,6 +18,7 @@ from . import demo
 from . import fit
 from . import info
 from . import report
+from . import sidereal
 from . import simulate
 from .options import EXIT_BAD_INPUT, UsageError
 from .wording import one_line, show_warning, to_flags
@@ -31,6 +32,7 @@ COMMANDS = {
     "compare": compare,
     "report": report,
     "simulate": simulate,
+    "sidereal": sidereal,
 }
 
 

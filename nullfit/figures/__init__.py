@@ -19,6 +19,9 @@ function                       figure
 :func:`plot_belt`              unified (Feldman–Cousins) confidence belt with the interval marked
 :func:`plot_limits`            the limits of every route side by side (amplitude and peak-to-peak)
 :func:`plot_expected_vs_bound` expected amplitude vs upper limit across runs, ratio annotated
+:func:`plot_sidereal_fold`     per-turn B, C of a campaign folded on sidereal time, fitted model
+:func:`plot_quadratures`       one sidereal quadrature per day against the annual phase, model
+:func:`plot_sky_bounds`        SME/RMS bounds of a campaign beside published ones (log axis)
 =============================  =====================================================================
 
 Figures draw; they do not compute.  What they show comes from the stages: the drift model and
@@ -34,6 +37,7 @@ from .intervals import plot_belt, plot_limits, plot_posterior
 from .plane import plot_plane
 from .scan import plot_folded, plot_scan
 from .series import plot_allan, plot_per_turn
+from .sky import plot_quadratures, plot_sidereal_fold, plot_sky_bounds
 
 __all__ = [
     "plot_scan",
@@ -45,4 +49,7 @@ __all__ = [
     "plot_belt",
     "plot_limits",
     "plot_expected_vs_bound",
+    "plot_sidereal_fold",
+    "plot_quadratures",
+    "plot_sky_bounds",
 ]
