@@ -11,15 +11,15 @@ columns ``1, t − t_mid, cos kθ, sin kθ``.
 
 How it is vectorised (no Python loop over turns)
 ------------------------------------------------
-The rows are processed in chunks of whole turns (~65 000 rows).  For every chunk the design
-columns are built once (``q`` rows of a ``(q, m)`` array: drift, harmonics, aux, signal), the
-products of every pair of columns are formed and summed over each turn with
-``numpy.add.reduceat`` — this yields the per-turn normal matrices ``G_i = X_iᵀX_i`` as a
-``(n_turns, q, q)`` stack.  The small systems are then solved all at once with stacked
-``numpy.linalg.inv``/``matmul``, and the residuals of the chunk are formed while its columns
-are still in memory (so the per-turn residual sum of squares is exact, not ``yᵀy − βᵀXᵀy``).
-The signal is centred on each turn's mean before anything is summed, so an offset of 10⁶
-does not cost digits.
+The rows are processed in chunks of whole turns.  For every chunk the design columns are built
+once (rows of a ``(q, m)`` array: drift, harmonics, aux, signal), the products of pairs of
+columns are formed and summed over each turn with ``numpy.add.reduceat`` — this yields the
+per-turn normal matrices ``G_i = X_iᵀX_i`` (:meth:`TurnEngine.segment_gram`, used by the joint
+fit and the aux projection).  The per-turn demodulation itself (:meth:`TurnEngine.demodulate`)
+runs on :class:`.kernel.TurnKernel`, which needs fewer products (product-to-sum identities for
+the harmonic block), cache-sized chunks, and solves all turns at once; its RSS is exact (explicit
+residuals) when ``yᵀy − βᵀXᵀy`` would lose digits.  The signal is centred on each turn's mean
+before anything is summed, so an offset of 10⁶ does not cost digits.
 
 The same engine (:class:`TurnEngine`) serves the joint fit in ``nullfit.fit``: per-turn drift is
 projected out turn by turn from the per-turn normal matrices (Frisch–Waugh–Lovell).
@@ -33,6 +33,8 @@ import numpy as np
 
 from ..core.errors import AnalysisError, where
 from .design import check_harmonics, harmonic_rows, scale_time
+from .kernel import CHUNK_ROWS as KERNEL_CHUNK_ROWS
+from .kernel import TurnKernel
 from .linalg import stacked_inverse
 from .segments import chunk_bounds, segment_sums, turn_segments
 
@@ -40,10 +42,6 @@ from .segments import chunk_bounds, segment_sums, turn_segments
 CHUNK_ROWS = 1 << 16
 #: Largest cache of harmonic columns kept between the two passes of a joint fit (bytes).
 HARMONIC_CACHE_BYTES = 512 * 2 ** 20
-
-
-#: Above this ratio yᵀy / RSS the per-turn RSS is computed from explicit residuals.
-RSS_FORMULA_MAX = 1e4
 
 
 @dataclass
@@ -79,7 +77,7 @@ class TurnEngine:
     """
 
     def __init__(self, scan, harmonics, *, degree: int | None = 1, drift_mode: str = "turn", aux=(),
-                 complete_only: bool = True, min_samples: int = 1, chunk_rows: int = CHUNK_ROWS):
+                 complete_only: bool = True, min_samples: int = 1, chunk_rows: int | None = None):
         if drift_mode not in ("turn", "global"):
             raise ValueError(f"drift_mode must be 'turn' or 'global', not {drift_mode!r}")
         self.drift_mode = drift_mode
@@ -106,8 +104,10 @@ class TurnEngine:
             raise AnalysisError(f"{where(scan.source)}: no usable turns left to fit "
                             f"(excluded: {self.excluded_text() or 'none'})")
         self.seg = seg
-        # about 8+ chunks for short scans (small buffers), at most CHUNK_ROWS rows for long ones
-        self.chunk_rows = int(min(chunk_rows, max(4096, seg.n_rows // 8)))
+        # about 8+ chunks for short scans (small buffers), at most CHUNK_ROWS rows for long ones;
+        # the per-turn kernel has its own cache-sized chunks unless chunk_rows is given
+        self.chunk_rows = int(min(chunk_rows or CHUNK_ROWS, max(4096, seg.n_rows // 8)))
+        self._kernel_rows = KERNEL_CHUNK_ROWS if chunk_rows is None else int(chunk_rows)
         self._bounds = chunk_bounds(seg, self.chunk_rows)
         t = scan.time
         t_first, t_last = t[seg.start], t[seg.stop - 1]
@@ -292,42 +292,47 @@ class TurnEngine:
 
     # ------------------------------------------------------------------ per-turn solve
     def demodulate(self, *, delta=None) -> "PerTurn":
-        """Per-turn least squares of (signal − aux·delta) on per-turn drift + harmonics."""
-        p = self.n_drift + self.n_harm
-        nseg = self.seg.n
-        coef = np.full((nseg, p), np.nan)
-        cov_h = np.full((nseg, self.n_harm, self.n_harm), np.nan)
-        rss = np.full(nseg, np.nan)
-        ok = np.zeros(nseg, bool)
-        cols = list(range(p)) + [self.y_index]
-        for ch in self.chunks():
-            X = self.columns(ch, delta=delta)
-            Xp = X[cols] if self.n_aux else X
-            G = self.segment_gram(Xp, ch)
-            A, rhs = G[:, :p, :p], G[:, :p, p]
-            Ainv, good = stacked_inverse(A)
-            good &= ch.lengths > p
-            if not good.any():
-                continue
-            beta = np.einsum("sij,sj->si", Ainv, rhs)
-            beta[~good] = 0.0
-            # RSS = yᵀy − βᵀXᵀy loses digits only when the fit explains nearly all of yᵀy;
-            # then (ratio > RSS_FORMULA_MAX) the residuals of the chunk are formed explicitly.
-            yy = G[:, p, p]
-            rs = yy - np.einsum("si,si->s", beta, rhs)
-            if np.any(yy[good] > RSS_FORMULA_MAX * np.maximum(rs[good], 0.0)):
-                r = Xp[p].copy()
-                for j in range(p):
-                    r -= Xp[j] * beta[ch.sidx, j]
-                rs = np.add.reduceat(r * r, ch.lstarts)
-            sl = slice(ch.i0, ch.i1)
-            gi = np.flatnonzero(good) + ch.i0
-            coef[gi] = beta[good]
-            s2 = rs[good] / (ch.lengths[good] - p)
-            cov_h[gi] = Ainv[good][:, self.h_slice, self.h_slice] * s2[:, None, None]
-            rss[gi] = rs[good]
-            ok[sl] = good
-        return PerTurn(self, coef, cov_h, rss, ok, delta)
+        """Per-turn least squares of (signal − aux·delta) on per-turn drift + harmonics
+        (:class:`.kernel.TurnKernel`)."""
+        if not self.n_drift or self.drift_mode != "turn":
+            raise ValueError("per-turn demodulation needs a per-turn drift basis")
+        kern = TurnKernel(self.ks, self.degree, chunk_rows=self._kernel_rows)
+        correct = None
+        if delta is not None and self.n_aux:
+            delta = np.asarray(delta, dtype=float)
+            scan, center, scale = self.scan, self.aux_center, self.aux_scale
+
+            def correct(a, b, y):
+                for j, name in enumerate(self.aux_names):
+                    y -= delta[j] * ((scan.aux[name][a:b] - center[j]) / scale[j])
+
+        # every turn of the scan goes through the kernel (left-out turns are few), so that its
+        # chunks, and the numbers, are those of the same scan streamed in pieces
+        scan = self.scan
+        every = turn_segments(scan)
+        sol = kern.run(scan.time, scan.angle, scan.signal, every, first_rows=scan.rows[every.start], correct=correct)
+        i = np.searchsorted(every.turn, self.seg.turn)
+        return PerTurn(self, sol.coef[i], sol.cov[i], sol.rss[i], sol.ok[i], delta)
+
+
+def turn_frame(turn, t_mid, n_samples, complete, harm, cov, rss, *, ks, unit, source, degree, excluded):
+    """The per-turn table (see :func:`nullfit.demodulate`) from per-turn arrays."""
+    import pandas as pd
+
+    n = np.asarray(n_samples).astype(np.int64)
+    d = {"turn": np.asarray(turn), "time_mid_s": np.asarray(t_mid), "n_samples": n}
+    for j, k in enumerate(ks):
+        d[f"c{k}"] = harm[:, 2 * j]
+        d[f"s{k}"] = harm[:, 2 * j + 1]
+        d[f"sigma_c{k}"] = np.sqrt(cov[:, 2 * j, 2 * j])
+        d[f"sigma_s{k}"] = np.sqrt(cov[:, 2 * j + 1, 2 * j + 1])
+    d["resid_rms"] = np.sqrt(rss / n)
+    d["complete"] = np.array(complete, dtype=bool)
+    df = pd.DataFrame(d)
+    df.attrs.update({"harmonics": list(ks), "unit": unit, "source": source,
+                     "drift": "per-turn" if degree == 1 else f"per-turn:{degree}",
+                     "excluded": {k: {"turns": v[0], "rows": v[1]} for k, v in excluded.items()}})
+    return df
 
 
 @dataclass
@@ -347,22 +352,6 @@ class PerTurn:
 
     def frame(self):
         """The per-turn table (see :func:`demodulate`)."""
-        import pandas as pd
-
         e = self.engine
-        seg = e.seg
-        n = seg.length.astype(np.int64)
-        d = {"turn": seg.turn, "time_mid_s": e.t_mid, "n_samples": n}
-        h = self.harm
-        for j, k in enumerate(e.ks):
-            d[f"c{k}"] = h[:, 2 * j]
-            d[f"s{k}"] = h[:, 2 * j + 1]
-            d[f"sigma_c{k}"] = np.sqrt(self.cov[:, 2 * j, 2 * j])
-            d[f"sigma_s{k}"] = np.sqrt(self.cov[:, 2 * j + 1, 2 * j + 1])
-        d["resid_rms"] = np.sqrt(self.rss / n)
-        d["complete"] = seg.complete.copy()
-        df = pd.DataFrame(d)
-        df.attrs.update({"harmonics": list(e.ks), "unit": e.scan.unit, "source": e.scan.source,
-                         "drift": "per-turn" if e.degree == 1 else f"per-turn:{e.degree}",
-                         "excluded": {k: {"turns": v[0], "rows": v[1]} for k, v in e.excluded.items()}})
-        return df
+        return turn_frame(e.seg.turn, e.t_mid, e.seg.length, e.seg.complete, self.harm, self.cov, self.rss,
+                          ks=e.ks, unit=e.scan.unit, source=e.scan.source, degree=e.degree, excluded=e.excluded)
