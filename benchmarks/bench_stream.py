@@ -71,7 +71,9 @@ def adapter_stream(path: str, chunk_rows: int):
 
     from nullfit.reading.stream import ScanChunk, ScanStream
 
-    pf = pq.ParquetFile(path)
+    # pre_buffer=False: with read-ahead buffering, pyarrow keeps every row group it has read in
+    # its memory pool until the file is closed (measured: the pool grows with the file)
+    pf = pq.ParquetFile(path, pre_buffer=False)
     n = pf.metadata.num_rows
     first = pf.read_row_group(0, columns=["time_s"]).column(0)[0].as_py()
     epoch = int(np.floor(first))

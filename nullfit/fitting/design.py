@@ -62,7 +62,7 @@ SPLINE_DEGREE = 3
 #: Smallest normalised eigenvalue of the centred harmonic Gram matrix accepted as "separable".
 SEPARABILITY_MIN = 1e-6
 #: Readings of a long log used by the coverage check (:func:`coverage_sample`).
-SEPARABILITY_SAMPLE = 1 << 16
+SEPARABILITY_SAMPLE = 1 << 15
 
 
 # ----------------------------------------------------------------------------- harmonics

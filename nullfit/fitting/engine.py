@@ -89,21 +89,22 @@ class TurnEngine:
             if name not in scan.aux:
                 have = ", ".join(sorted(scan.aux)) or "none"
                 raise ValueError(f"auxiliary column {name!r} is not in the scan (available: {have})")
-        seg = turn_segments(scan)
+        seg = self._every = turn_segments(scan)  # every turn of the scan; self.seg: those used
+        idx = np.arange(seg.n)
         self.excluded: dict[str, tuple[int, int]] = {}
         if complete_only and (~seg.complete).any():
             bad = ~seg.complete
             self.excluded["partial turns"] = (int(bad.sum()), int(seg.length[bad].sum()))
-            seg = seg.take(~bad)
+            seg, idx = seg.take(~bad), idx[~bad]
         few = seg.length < max(min_samples, 2)
         if few.any():
             self.excluded[f"turns with fewer than {max(min_samples, 2)} readings"] = (
                 int(few.sum()), int(seg.length[few].sum()))
-            seg = seg.take(~few)
+            seg, idx = seg.take(~few), idx[~few]
         if seg.n == 0:
             raise AnalysisError(f"{where(scan.source)}: no usable turns left to fit "
                             f"(excluded: {self.excluded_text() or 'none'})")
-        self.seg = seg
+        self.seg, self._idx = seg, idx
         # about 8+ chunks for short scans (small buffers), at most CHUNK_ROWS rows for long ones;
         # the per-turn kernel has its own cache-sized chunks unless chunk_rows is given
         self.chunk_rows = int(min(chunk_rows or CHUNK_ROWS, max(4096, seg.n_rows // 8)))
@@ -114,7 +115,9 @@ class TurnEngine:
         self.t_mid = 0.5 * (t_first + t_last)
         self.inv_half = 2.0 / (t_last - t_first)
         self.n_rows = seg.n_rows
-        y_sum = segment_sums(scan.signal, seg.start, seg.stop)
+        y_sum_every = segment_sums(scan.signal, self._every.start, self._every.stop)
+        self._y_mean_every = y_sum_every / self._every.length
+        y_sum = y_sum_every[idx]
         self.y_mean_turn = y_sum / seg.length
         self.y_mean = float(y_sum.sum() / self.n_rows)
         self.t_lo, self.t_hi = float(t_first[0]), float(t_last[-1])
@@ -167,7 +170,7 @@ class TurnEngine:
         keep = ~bad
         if not keep.any():
             raise AnalysisError(f"{where(self.scan.source)}: no usable turns left to fit ({self.excluded_text()})")
-        self.seg = self.seg.take(keep)
+        self.seg, self._idx = self.seg.take(keep), self._idx[keep]
         if self._harm_cache is not None:
             self._harm_cache = {}
         self.t_mid, self.inv_half = self.t_mid[keep], self.inv_half[keep]
@@ -308,10 +311,11 @@ class TurnEngine:
 
         # every turn of the scan goes through the kernel (left-out turns are few), so that its
         # chunks, and the numbers, are those of the same scan streamed in pieces
-        scan = self.scan
-        every = turn_segments(scan)
-        sol = kern.run(scan.time, scan.angle, scan.signal, every, first_rows=scan.rows[every.start], correct=correct)
-        i = np.searchsorted(every.turn, self.seg.turn)
+        scan, every, i = self.scan, self._every, self._idx
+        sol = kern.run(scan.time, scan.angle, scan.signal, every, first_rows=scan.rows[every.start],
+                       y_mean=self._y_mean_every, correct=correct)
+        if i.size and i[-1] - i[0] == i.size - 1:  # the used turns are consecutive: views, no copies
+            i = slice(int(i[0]), int(i[-1]) + 1)
         return PerTurn(self, sol.coef[i], sol.cov[i], sol.rss[i], sol.ok[i], delta)
 
 

@@ -67,8 +67,12 @@ class StreamTurns:
     coverage: np.ndarray  # Σ over every reading of the products of [1, harmonics]
 
     def take(self, keep: np.ndarray) -> "StreamTurns":
-        return StreamTurns(self.turn[keep], self.n[keep], self.t_mid[keep], self.coef[keep], self.cov[keep],
-                           self.rss[keep], self.ok[keep], self.coverage)
+        """The turns flagged in ``keep``: views when they are consecutive (the usual case: only the
+        first and last turns are partial), else copies."""
+        i = np.flatnonzero(keep)
+        sel = slice(int(i[0]), int(i[-1]) + 1) if i.size and i[-1] - i[0] == i.size - 1 else i
+        return StreamTurns(self.turn[sel], self.n[sel], self.t_mid[sel], self.coef[sel], self.cov[sel],
+                           self.rss[sel], self.ok[sel], self.coverage)
 
 
 def _not_increasing(source) -> AnalysisError:
@@ -292,11 +296,14 @@ def turn_scatter(b, cov, block_turns: int = 1, *, source=None, left: str = "") -
     Z = np.zeros((n_blocks, nh))
     np.add.at(Z, blk, z)
     cov_all = n_blocks / (n_blocks - 1) * (Z.T @ Z)
-    Cinv, okc = stacked_inverse(cov)
-    dev = b - mean
-    chi2 = float(np.einsum("si,sij,sj->", dev[okc], Cinv[okc], dev[okc]))
+    chi2, n_ok = 0.0, 0
+    for a in range(0, N, 1 << 16):  # in pieces: no second copy of the per-turn covariances
+        Cinv, okc = stacked_inverse(cov[a:a + (1 << 16)])
+        dev = b[a:a + (1 << 16)] - mean
+        chi2 += float(np.einsum("si,sij,sj->", dev[okc], Cinv[okc], dev[okc]))
+        n_ok += int(okc.sum())
     return dict(coef=mean, cov=cov_all, n_blocks=n_blocks, cov_dof=n_blocks - 1, chi2=chi2,
-                chi2_n=int(nh * (okc.sum() - 1)))
+                chi2_n=int(nh * (n_ok - 1)))
 
 
 def _scan_fit(stream, ks, spec, kind, used: _Used, sc, B, complete_only, per_turn) -> ScanFit:
