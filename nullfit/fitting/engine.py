@@ -27,6 +27,7 @@ projected out turn by turn from the per-turn normal matrices (Frisch–Waugh–L
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 
 import numpy as np
@@ -105,6 +106,7 @@ class TurnEngine:
             raise AnalysisError(f"{where(scan.source)}: no usable turns left to fit "
                             f"(excluded: {self.excluded_text() or 'none'})")
         self.seg, self._idx = seg, idx
+        self._means = None  # (segments, turn means, mean) of the used turns, on demand
         # about 8+ chunks for short scans (small buffers), at most CHUNK_ROWS rows for long ones;
         # the per-turn kernel has its own cache-sized chunks unless chunk_rows is given
         self.chunk_rows = int(min(chunk_rows or CHUNK_ROWS, max(4096, seg.n_rows // 8)))
@@ -115,11 +117,6 @@ class TurnEngine:
         self.t_mid = 0.5 * (t_first + t_last)
         self.inv_half = 2.0 / (t_last - t_first)
         self.n_rows = seg.n_rows
-        y_sum_every = segment_sums(scan.signal, self._every.start, self._every.stop)
-        self._y_mean_every = y_sum_every / self._every.length
-        y_sum = y_sum_every[idx]
-        self.y_mean_turn = y_sum / seg.length
-        self.y_mean = float(y_sum.sum() / self.n_rows)
         self.t_lo, self.t_hi = float(t_first[0]), float(t_last[-1])
         self.aux_center = np.zeros(len(self.aux_names))
         self.aux_scale = np.ones(len(self.aux_names))
@@ -140,6 +137,27 @@ class TurnEngine:
         self.y_index = self.a_slice.stop
         self.q = self.y_index + 1
         self._harm_cache = None
+
+    # ------------------------------------------------------------------ turn means (on demand)
+    @functools.cached_property
+    def _y_sum_every(self) -> np.ndarray:
+        return segment_sums(self.scan.signal, self._every.start, self._every.stop)
+
+    def _turn_means(self):
+        if self._means is None or self._means[0] is not self.seg:
+            y_sum = self._y_sum_every[self._idx]
+            self._means = (self.seg, y_sum / self.seg.length, float(y_sum.sum() / self.n_rows))
+        return self._means
+
+    @property
+    def y_mean_turn(self) -> np.ndarray:
+        """Mean signal of every used turn."""
+        return self._turn_means()[1]
+
+    @property
+    def y_mean(self) -> float:
+        """Mean signal over the used rows."""
+        return self._turn_means()[2]
 
     def cache_harmonics(self, max_bytes: int = HARMONIC_CACHE_BYTES) -> bool:
         """Keep the harmonic columns between passes over the data (the joint fit reads the
@@ -174,9 +192,7 @@ class TurnEngine:
         if self._harm_cache is not None:
             self._harm_cache = {}
         self.t_mid, self.inv_half = self.t_mid[keep], self.inv_half[keep]
-        self.y_mean_turn = self.y_mean_turn[keep]
         self.n_rows = self.seg.n_rows
-        self.y_mean = float((self.y_mean_turn * self.seg.length).sum() / self.n_rows)
         self.t_lo, self.t_hi = float(self.scan.time[self.seg.start[0]]), float(self.scan.time[self.seg.stop[-1] - 1])
         self._bounds = chunk_bounds(self.seg, self.chunk_rows)
 
@@ -312,8 +328,7 @@ class TurnEngine:
         # every turn of the scan goes through the kernel (left-out turns are few), so that its
         # chunks, and the numbers, are those of the same scan streamed in pieces
         scan, every, i = self.scan, self._every, self._idx
-        sol = kern.run(scan.time, scan.angle, scan.signal, every, first_rows=scan.rows[every.start],
-                       y_mean=self._y_mean_every, correct=correct)
+        sol = kern.run(scan.time, scan.angle, scan.signal, every, first_rows=scan.rows[every.start], correct=correct)
         if i.size and i[-1] - i[0] == i.size - 1:  # the used turns are consecutive: views, no copies
             i = slice(int(i[0]), int(i[-1]) + 1)
         return PerTurn(self, sol.coef[i], sol.cov[i], sol.rss[i], sol.ok[i], delta)

@@ -373,8 +373,9 @@ class TurnKernel:
         return self._buf
 
     # ------------------------------------------------------------------ a block
-    def _sums(self, time, angle, signal, seg: Segments, chunks, reps, correct) -> np.ndarray:
-        """Row sums ``(plan.n_rows, n)`` of the turns of ``chunks`` (see :class:`GramPlan`)."""
+    def _sums(self, time, angle, signal, seg: Segments, chunks, reps, correct, means=False) -> np.ndarray:
+        """Row sums ``(plan.n_rows, n)`` of the turns of ``chunks`` (see :class:`GramPlan`);
+        ``means``: first fill in the turn means ``reps[2]`` of each chunk."""
         plan, q = self.plan, self.plan.q
         B, scratch = self._buffers(max(b - a for _, _, a, b, _ in chunks))
         j0 = chunks[0][0]
@@ -382,6 +383,8 @@ class TurnKernel:
         for i0, i1, a, b, L in chunks:
             Bv = B[:, :b - a]
             ln = seg.length[i0:i1]
+            if means:  # the sums of segment_sums: each turn reduced on its own
+                np.divide(np.add.reduceat(signal[a:b], seg.start[i0:i1] - a), ln, out=reps[2][i0:i1])
             self._columns(Bv, scratch, time[a:b], angle[a:b], signal[a:b], reps, ln, i0, i1, correct, a, L)
             o = out[:, i0 - j0:i1 - j0]
             if L:  # equal turns: one matrix product per turn for all pairs, a matrix-vector product for sums
@@ -400,15 +403,16 @@ class TurnKernel:
             self._one = np.ones(L)
         return self._one[:L]
 
-    def references(self, time, signal, seg: Segments, y_mean=None):
+    def references(self, time, signal, seg: Segments, y_mean=None, *, later: bool = False):
         """Per-turn ``(t_mid, inv_half, y_mean)``: the turn's mid time, 2 / its span (0 for a
-        single reading), and its mean signal."""
+        single reading), and its mean signal (``later``: an empty array that :meth:`_sums`
+        fills chunk by chunk, while the chunk's signal is in cache)."""
         t_first, t_last = time[seg.start], time[seg.stop - 1]
         t_mid = 0.5 * (t_first + t_last)
         span = t_last - t_first
         inv_half = 2.0 / np.where(span > 0, span, np.inf)
         if y_mean is None:
-            y_mean = segment_sums(signal, seg.start, seg.stop) / seg.length
+            y_mean = np.empty(seg.n) if later else segment_sums(signal, seg.start, seg.stop) / seg.length
         return t_mid, inv_half, y_mean
 
     def gram(self, sums, lengths, inv_half) -> np.ndarray:
@@ -430,17 +434,18 @@ class TurnKernel:
         p, nd, nh = self.p, self.nd, self.nh
         N = seg.n
         lengths = seg.length
-        reps = self.references(time, signal, seg, y_mean)
-        coef = np.full((N, p), np.nan)
-        cov = np.full((N, nh, nh), np.nan)
-        rss = np.full(N, np.nan)
+        means = y_mean is None
+        reps = self.references(time, signal, seg, y_mean, later=True)
+        coef = np.empty((N, p))
+        cov = np.empty((N, nh, nh))
+        rss = np.empty(N)
         ok = np.zeros(N, bool)
         keep = np.r_[0, nd:p]
         hsum = np.zeros((keep.size, keep.size))
         for chunks in self._chunks(seg, first_rows):
             j0, j1 = chunks[0][0], chunks[-1][1]
             ln = lengths[j0:j1]
-            G = self.gram(self._sums(time, angle, signal, seg, chunks, reps, correct), ln, reps[1][j0:j1])
+            G = self.gram(self._sums(time, angle, signal, seg, chunks, reps, correct, means), ln, reps[1][j0:j1])
             beta, inv, rs, good = solve_normal(G, p, self._ws, tail=nd)
             good &= ln > p
             explicit = good & (G[p, p] > RSS_FORMULA_MAX * np.maximum(rs, 0.0))
@@ -460,6 +465,8 @@ class TurnKernel:
                 ok[gi] = True
                 s2 = rs[sel] / (ln[sel] - p)
                 cov[gi] = np.moveaxis(inv[:, :, sel], 2, 0) * s2[:, None, None]
+        if not ok.all():
+            coef[~ok], cov[~ok], rss[~ok] = np.nan, np.nan, np.nan
         return TurnSolution(coef, cov, rss, ok, reps[0], hsum)
 
     def _explicit_rss(self, time, angle, signal, seg, chunks, reps, beta, rs, explicit, correct):
