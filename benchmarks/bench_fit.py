@@ -163,9 +163,10 @@ def bench_size(n: int, per_turn: int, repeat: int, with_statsmodels: bool):
         gc.collect()
 
     # ---- 2. default fit and demodulate vs a per-turn loop
-    t_fit, g = timed(lambda: fit_scan(scan), repeat)
-    t_dem, df = timed(lambda: demodulate(scan), repeat)
-    t_loop, ref = timed(lambda: loop_per_turn(scan), 1 if n >= 5_000_000 else repeat)
+    g, df, ref = fit_scan(scan), demodulate(scan), loop_per_turn(scan)
+    r = interleaved({"fit": lambda: fit_scan(scan), "demod": lambda: demodulate(scan),
+                     "loop": lambda: loop_per_turn(scan)}, 1 if n >= 5_000_000 else repeat)
+    t_fit, t_dem, t_loop = r["fit"][0], r["demod"][0], r["loop"][0]
     mine = df[["c1", "s1", "c2", "s2", "sigma_c1", "sigma_s1", "sigma_c2", "sigma_s2"]].to_numpy()
     b = ref[:, :4]
     print(f"[per-turn, turns] nullfit.fit_scan (default)     {t_fit:8.3f} s   speed-up {t_loop / t_fit:6.1f}x")

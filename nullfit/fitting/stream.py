@@ -220,6 +220,9 @@ def _frame(used: _Used, stream, ks, degree):
 def _pass(stream, ks, spec, complete_only, min_samples, progress) -> _Used:
     turns = stream_turns(stream, TurnKernel(ks, spec.degree), progress=progress)
     check_separable_sums(turns.coverage, ks, marks=stream.marks, source=stream.source)
+    if stream.turn_complete is None:
+        raise ValueError(f"{where(stream.source)}: the stream did not say which turns are complete "
+                         "(ScanStream.turn_complete is unset after a full pass)")
     complete = np.asarray(stream.turn_complete, dtype=bool)
     if turns.turn.size and int(turns.turn.max()) >= complete.size:
         raise AnalysisError(f"{where(stream.source)}: the stream numbered {int(turns.turn.max()) + 1} turns but "

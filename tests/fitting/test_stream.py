@@ -247,3 +247,19 @@ def test_fit_path_streams_on_request_or_says_why_not(tmp_path, make_arrays):
         assert any("no streaming reader" in n for n in f.notes)
     with pytest.raises(ValueError, match="stream must be"):
         fit_path(p, stream="yes")
+
+
+def test_progress_bar_over_the_readings(make_arrays, capsys):
+    s = continuous(make_arrays, seed=14)
+    f = quiet(fit_stream, ScanStream.from_scan(s, 100), progress=True)
+    same_fit(f, quiet(fit_scan, s))
+    err = capsys.readouterr().err
+    assert "reading" in err and f"{s.n_samples}" in err.replace(",", "")  # tqdm counted every reading
+
+
+def test_a_stream_must_say_which_turns_are_complete(make_arrays):
+    s = continuous(make_arrays, seed=15)
+    st = ScanStream.from_scan(s, 100)
+    st.turn_complete = None
+    with pytest.raises(ValueError, match="which turns are complete"):
+        fit_stream(st, progress=False)
