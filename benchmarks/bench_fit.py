@@ -8,6 +8,10 @@ Run from the repository root::
 
 For every size it prints
 
+0. the floor: ``numpy.cos`` and ``numpy.sin`` of every reading's angle (any harmonic fit must
+   compute them), and the default fit as a multiple of it — for the log with 72 readings in
+   every turn, and for one whose turns alternate between 72 and 73 readings (as a continuously
+   sampled log whose turn period is not a whole number of sampling intervals);
 1. ``drift="poly:3"``, 1θ + 2θ, HAC errors: ``nullfit.fit_scan`` against statsmodels
    ``OLS(y, X).fit(cov_type="HAC", cov_kwds={"maxlags": L, "use_correction": True})`` on the
    same dense design (built beforehand; its construction time is shown separately and *not*
@@ -19,10 +23,14 @@ For every size it prints
 3. the peak memory (``tracemalloc``) of the default fit, as a multiple of the input arrays
    (time, angle, signal).
 
+The summary at the end lists, per size, the default fit over the floor and the speed-ups over
+the per-turn loop and statsmodels.
+
 The simulated scan is invented: a table turning at one turn per ``--per-turn`` readings,
 a 2θ signal, a slow drift and white noise, all in float64.  The 1e7 case needs several GB for
 statsmodels' dense design; it is run once (no repeats).  Timings are wall-clock on whatever
-machine runs this; shared machines make them noisy, ratios are what matters.
+machine runs this; shared machines make them noisy, ratios are what matters: the steps of
+one size run interleaved, ``--repeat`` times, and the medians are shown (the minimum in brackets).
 """
 
 from __future__ import annotations
@@ -36,7 +44,7 @@ import warnings
 import numpy as np
 
 
-def make_scan(n: int, per_turn: int, seed: int = 1):
+def make_scan(n: int, per_turn: float, seed: int = 1):
     from nullfit.reading.scan import Scan
 
     rng = np.random.default_rng(seed)
@@ -51,13 +59,44 @@ def make_scan(n: int, per_turn: int, seed: int = 1):
 
 
 def timed(fn, repeat: int):
-    best, out = np.inf, None
+    """Median wall time of ``repeat`` calls (and the last result)."""
+    ts, out = [], None
     for _ in range(repeat):
         gc.collect()
         t0 = time.perf_counter()
         out = fn()
-        best = min(best, time.perf_counter() - t0)
-    return best, out
+        ts.append(time.perf_counter() - t0)
+    return float(np.median(ts)), out
+
+
+def interleaved(fns: dict, repeat: int) -> dict:
+    """``{name: (median, min)}`` wall times of the functions, run in turn ``repeat`` times (so
+    that a busy spell of a shared machine hits all of them alike)."""
+    ts = {k: [] for k in fns}
+    for _ in range(repeat):
+        for k, fn in fns.items():
+            gc.collect()
+            t0 = time.perf_counter()
+            fn()
+            ts[k].append(time.perf_counter() - t0)
+    return {k: (float(np.median(v)), float(np.min(v))) for k, v in ts.items()}
+
+
+def trig_floor(scan):
+    """What any harmonic fit computes: cos θ and sin θ of every reading."""
+    return np.cos(scan.angle), np.sin(scan.angle)
+
+
+def floor_ratios(n: int, per_turn: float, repeat: int):
+    from nullfit.fitting.fit import fit_scan
+
+    scan = make_scan(n, per_turn)
+    r = interleaved({"floor": lambda: trig_floor(scan), "fit": lambda: fit_scan(scan)}, repeat)
+    (tf, tf_min), (tt, tt_min) = r["fit"], r["floor"]
+    print(f"[floor, {per_turn:g} readings/turn] cos θ + sin θ of every reading {tt:8.3f} s  [{tt_min:.3f}]")
+    print(f"[floor, {per_turn:g} readings/turn] nullfit.fit_scan (default)     {tf:8.3f} s  [{tf_min:.3f}]"
+          f"   = {tf / tt:5.2f}x the floor  [{tf_min / tt_min:.2f}x of the minima]")
+    return tf / tt
 
 
 def loop_per_turn(scan, harmonics=(1, 2)):
@@ -94,11 +133,14 @@ def bench_size(n: int, per_turn: int, repeat: int, with_statsmodels: bool):
     from nullfit.fitting.demodulate import demodulate
 
     print(f"\n=== n = {n:.0e} samples, {per_turn} readings per turn ===")
+    ratio_floor = floor_ratios(n, per_turn, max(repeat, 5))
+    ratio_floor_var = floor_ratios(n, per_turn + 0.4, max(repeat, 5))
     scan = make_scan(n, per_turn)
     input_bytes = scan.time.nbytes + scan.angle.nbytes + scan.signal.nbytes
     print(f"turns: {scan.n_turns} ({scan.n_complete_turns} complete); input arrays {input_bytes / 2**20:.0f} MiB")
 
     # ---- 1. poly:3 + HAC vs statsmodels on the dense design
+    sm_ratio = None
     t_nf, f = timed(lambda: fit_scan(scan, drift="poly:3", errors="hac"), repeat)
     L = f.hac_lags
     print(f"[poly:3, HAC, L={L}] nullfit.fit_scan            {t_nf:8.3f} s")
@@ -114,15 +156,17 @@ def bench_size(n: int, per_turn: int, repeat: int, with_statsmodels: bool):
         idx = [names.index(p) for p in f.param_names]
         print(f"[poly:3, HAC, L={L}] statsmodels OLS+HAC        {t_sm:8.3f} s   (+{t_design:.3f} s to build "
               f"the dense {X.shape[0]}x{X.shape[1]} design)")
+        sm_ratio = t_sm / t_nf
         print(f"    speed-up {t_sm / t_nf:6.1f}x;  max rel diff: coef {rel(f.coef, r.params[idx]):.1e}, "
               f"SE {rel(np.sqrt(np.diag(f.cov)), r.bse[idx]):.1e}")
         del X, y, r
         gc.collect()
 
     # ---- 2. default fit and demodulate vs a per-turn loop
-    t_fit, g = timed(lambda: fit_scan(scan), repeat)
-    t_dem, df = timed(lambda: demodulate(scan), repeat)
-    t_loop, ref = timed(lambda: loop_per_turn(scan), 1 if n >= 5_000_000 else repeat)
+    g, df, ref = fit_scan(scan), demodulate(scan), loop_per_turn(scan)
+    r = interleaved({"fit": lambda: fit_scan(scan), "demod": lambda: demodulate(scan),
+                     "loop": lambda: loop_per_turn(scan)}, 1 if n >= 5_000_000 else repeat)
+    t_fit, t_dem, t_loop = r["fit"][0], r["demod"][0], r["loop"][0]
     mine = df[["c1", "s1", "c2", "s2", "sigma_c1", "sigma_s1", "sigma_c2", "sigma_s2"]].to_numpy()
     b = ref[:, :4]
     print(f"[per-turn, turns] nullfit.fit_scan (default)     {t_fit:8.3f} s   speed-up {t_loop / t_fit:6.1f}x")
@@ -140,22 +184,29 @@ def bench_size(n: int, per_turn: int, repeat: int, with_statsmodels: bool):
     _, peak = tracemalloc.get_traced_memory()
     tracemalloc.stop()
     print(f"[memory] default fit peak {peak / 2**20:8.1f} MiB = {peak / input_bytes:.2f}x the input arrays")
-    return dict(n=n, poly_hac=t_nf, default=t_fit, demod=t_dem, loop=t_loop, peak_ratio=peak / input_bytes)
+    return dict(n=n, poly_hac=t_nf, default=t_fit, demod=t_dem, loop=t_loop, peak_ratio=peak / input_bytes,
+                floor_ratio=ratio_floor, floor_ratio_uneven=ratio_floor_var, sm_ratio=sm_ratio)
 
 
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--sizes", default="1e5,1e6,1e7")
-    ap.add_argument("--per-turn", type=int, default=64)
-    ap.add_argument("--repeat", type=int, default=3, help="best of N for sizes below 5e6")
+    ap.add_argument("--per-turn", type=int, default=72)
+    ap.add_argument("--repeat", type=int, default=5, help="median of N for sizes below 5e6 (the floor: always)")
     ap.add_argument("--no-statsmodels", action="store_true")
     args = ap.parse_args(argv)
     import numpy
     import statsmodels
 
     print(f"numpy {numpy.__version__}, statsmodels {statsmodels.__version__}")
-    for s in args.sizes.split(","):
-        bench_size(int(float(s)), args.per_turn, args.repeat, not args.no_statsmodels)
+    rows = [bench_size(int(float(s)), args.per_turn, args.repeat, not args.no_statsmodels)
+            for s in args.sizes.split(",")]
+    print("\nsummary (medians): n, default fit / floor (72 per turn; 72-73 per turn), loop / default fit, "
+          "statsmodels HAC / nullfit HAC")
+    for r in rows:
+        sm = f"{r['sm_ratio']:.1f}x" if r.get("sm_ratio") else "-"
+        print(f"  {r['n']:.0e}: {r['floor_ratio']:.2f}x; {r['floor_ratio_uneven']:.2f}x   "
+              f"{r['loop'] / r['default']:.1f}x   {sm}")
 
 
 if __name__ == "__main__":

@@ -48,6 +48,9 @@ _EXPORTS = {
     "ScanFit": "fitting.scanfit",
     "HarmonicEstimate": "fitting.estimate",
     "demodulate": "fitting.demodulate",
+    "fit_stream": "fitting.stream",
+    "demodulate_stream": "fitting.stream",
+    "fit_path": "fitting.stream",
     "allan_deviation": "fitting.allan",
     "AllanDeviation": "fitting.allan",
     # limits

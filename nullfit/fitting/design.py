@@ -61,6 +61,8 @@ from ..reading.turn_numbering import TWO_PI
 SPLINE_DEGREE = 3
 #: Smallest normalised eigenvalue of the centred harmonic Gram matrix accepted as "separable".
 SEPARABILITY_MIN = 1e-6
+#: Readings of a long log used by the coverage check (:func:`coverage_sample`).
+SEPARABILITY_SAMPLE = 1 << 15
 
 
 # ----------------------------------------------------------------------------- harmonics
@@ -122,23 +124,61 @@ def check_separable(angle, harmonics, *, marks: int | None = None, source: str |
       vanishes at every mark and ``cos kθ`` equals ``cos (M−k)θ`` there (aliasing).
     * Otherwise the centred harmonic columns must be linearly independent: the smallest
       eigenvalue of their Gram matrix, normalised by the mean square of a full-coverage column
-      (1/2), must exceed ``SEPARABILITY_MIN``.
+      (1/2), must exceed ``SEPARABILITY_MIN``.  Coverage is a property of the angles, so a long
+      log is checked on a sample of ``SEPARABILITY_SAMPLE`` readings in contiguous runs
+      (:func:`coverage_sample`; a strided sample could alias with the readings per turn).
     """
     ks = check_harmonics(harmonics)
+    _check_marks(ks, marks, source)
+    a = coverage_sample(np.asarray(angle, dtype=float))
+    h = harmonic_rows(a, ks)
+    h -= h.mean(axis=1, keepdims=True)
+    g = h @ h.T / h.shape[1]
+    ev = np.linalg.eigvalsh(g / 0.5)
+    if ev[0] < SEPARABILITY_MIN:
+        nuniq = np.unique(np.round(np.mod(a, TWO_PI), 6)).size
+        _refuse(ks, source, f"{nuniq} distinct azimuth(s)", ev[0])
+
+
+def check_separable_sums(sums, harmonics, *, marks: int | None = None, source: str | None = None) -> None:
+    """:func:`check_separable` from sums over every reading: ``sums`` is the ``(2K + 1)²``
+    matrix of the sums of products of ``[1, cos k₁θ, sin k₁θ, …]`` (a streamed log)."""
+    ks = check_harmonics(harmonics)
+    _check_marks(ks, marks, source)
+    S = np.asarray(sums, dtype=float)
+    n = S[0, 0]
+    mu = S[0, 1:] / n
+    g = S[1:, 1:] / n - np.outer(mu, mu)
+    ev = np.linalg.eigvalsh(g / 0.5)
+    if ev[0] < SEPARABILITY_MIN:
+        _refuse(ks, source, f"{int(n)} readings" + (f" at {marks} marks" if marks else ""), ev[0])
+
+
+def coverage_sample(a: np.ndarray) -> np.ndarray:
+    """At most ``SEPARABILITY_SAMPLE`` readings of ``a`` for the coverage check: 64 contiguous
+    runs, spread over the log with golden-ratio offsets (so that their phases within a turn do
+    not repeat, whatever the readings per turn)."""
+    n = a.size
+    if n <= SEPARABILITY_SAMPLE:
+        return a
+    runs = 64
+    run = SEPARABILITY_SAMPLE // runs
+    stride = (n - run) // runs
+    jitter = np.mod(np.arange(runs) * 0.6180339887498949, 1.0)
+    starts = np.arange(runs) * stride + (jitter * max(stride - run, 0)).astype(np.int64)
+    return a[(starts[:, None] + np.arange(run)).ravel()]
+
+
+def _check_marks(ks, marks, source) -> None:
     if marks is not None and max(ks) >= marks / 2:
         bad = [k for k in ks if k >= marks / 2]
         raise AnalysisError(f"{where(source)}: the table was read at {marks} marks per turn, which identifies "
                         f"harmonics only up to k < {marks / 2:g}; cannot fit k = {', '.join(map(str, bad))}")
-    a = np.asarray(angle, dtype=float)
-    step = max(1, a.size // 200_000)  # coverage is a property of the angles; a subsample suffices
-    h = harmonic_columns(a[::step], ks)
-    h -= h.mean(axis=0)
-    g = h.T @ h / h.shape[0]
-    ev = np.linalg.eigvalsh(g / 0.5)
-    if ev[0] < SEPARABILITY_MIN:
-        nuniq = np.unique(np.round(np.mod(a[::step], TWO_PI), 6)).size
-        raise AnalysisError(f"{where(source)}: angle coverage cannot separate the harmonics {ks} "
-                        f"({nuniq} distinct azimuth(s); smallest normalised eigenvalue {ev[0]:.2e})")
+
+
+def _refuse(ks, source, what: str, ev0: float) -> None:
+    raise AnalysisError(f"{where(source)}: angle coverage cannot separate the harmonics {ks} "
+                        f"({what}; smallest normalised eigenvalue {ev0:.2e})")
 
 
 # ----------------------------------------------------------------------------- time bases

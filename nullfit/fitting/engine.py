@@ -11,15 +11,15 @@ columns ``1, t − t_mid, cos kθ, sin kθ``.
 
 How it is vectorised (no Python loop over turns)
 ------------------------------------------------
-The rows are processed in chunks of whole turns (~65 000 rows).  For every chunk the design
-columns are built once (``q`` rows of a ``(q, m)`` array: drift, harmonics, aux, signal), the
-products of every pair of columns are formed and summed over each turn with
-``numpy.add.reduceat`` — this yields the per-turn normal matrices ``G_i = X_iᵀX_i`` as a
-``(n_turns, q, q)`` stack.  The small systems are then solved all at once with stacked
-``numpy.linalg.inv``/``matmul``, and the residuals of the chunk are formed while its columns
-are still in memory (so the per-turn residual sum of squares is exact, not ``yᵀy − βᵀXᵀy``).
-The signal is centred on each turn's mean before anything is summed, so an offset of 10⁶
-does not cost digits.
+The rows are processed in chunks of whole turns.  For every chunk the design columns are built
+once (rows of a ``(q, m)`` array: drift, harmonics, aux, signal), the products of pairs of
+columns are formed and summed over each turn with ``numpy.add.reduceat`` — this yields the
+per-turn normal matrices ``G_i = X_iᵀX_i`` (:meth:`TurnEngine.segment_gram`, used by the joint
+fit and the aux projection).  The per-turn demodulation itself (:meth:`TurnEngine.demodulate`)
+runs on :class:`.kernel.TurnKernel`, which needs fewer products (product-to-sum identities for
+the harmonic block), cache-sized chunks, and solves all turns at once; its RSS is exact (explicit
+residuals) when ``yᵀy − βᵀXᵀy`` would lose digits.  The signal is centred on each turn's mean
+before anything is summed, so an offset of 10⁶ does not cost digits.
 
 The same engine (:class:`TurnEngine`) serves the joint fit in ``nullfit.fit``: per-turn drift is
 projected out turn by turn from the per-turn normal matrices (Frisch–Waugh–Lovell).
@@ -27,12 +27,15 @@ projected out turn by turn from the per-turn normal matrices (Frisch–Waugh–L
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 
 import numpy as np
 
 from ..core.errors import AnalysisError, where
 from .design import check_harmonics, harmonic_rows, scale_time
+from .kernel import CHUNK_ROWS as KERNEL_CHUNK_ROWS
+from .kernel import TurnKernel
 from .linalg import stacked_inverse
 from .segments import chunk_bounds, segment_sums, turn_segments
 
@@ -40,10 +43,6 @@ from .segments import chunk_bounds, segment_sums, turn_segments
 CHUNK_ROWS = 1 << 16
 #: Largest cache of harmonic columns kept between the two passes of a joint fit (bytes).
 HARMONIC_CACHE_BYTES = 512 * 2 ** 20
-
-
-#: Above this ratio yᵀy / RSS the per-turn RSS is computed from explicit residuals.
-RSS_FORMULA_MAX = 1e4
 
 
 @dataclass
@@ -79,7 +78,7 @@ class TurnEngine:
     """
 
     def __init__(self, scan, harmonics, *, degree: int | None = 1, drift_mode: str = "turn", aux=(),
-                 complete_only: bool = True, min_samples: int = 1, chunk_rows: int = CHUNK_ROWS):
+                 complete_only: bool = True, min_samples: int = 1, chunk_rows: int | None = None):
         if drift_mode not in ("turn", "global"):
             raise ValueError(f"drift_mode must be 'turn' or 'global', not {drift_mode!r}")
         self.drift_mode = drift_mode
@@ -91,32 +90,33 @@ class TurnEngine:
             if name not in scan.aux:
                 have = ", ".join(sorted(scan.aux)) or "none"
                 raise ValueError(f"auxiliary column {name!r} is not in the scan (available: {have})")
-        seg = turn_segments(scan)
+        seg = self._every = turn_segments(scan)  # every turn of the scan; self.seg: those used
+        idx = np.arange(seg.n)
         self.excluded: dict[str, tuple[int, int]] = {}
         if complete_only and (~seg.complete).any():
             bad = ~seg.complete
             self.excluded["partial turns"] = (int(bad.sum()), int(seg.length[bad].sum()))
-            seg = seg.take(~bad)
+            seg, idx = seg.take(~bad), idx[~bad]
         few = seg.length < max(min_samples, 2)
         if few.any():
             self.excluded[f"turns with fewer than {max(min_samples, 2)} readings"] = (
                 int(few.sum()), int(seg.length[few].sum()))
-            seg = seg.take(~few)
+            seg, idx = seg.take(~few), idx[~few]
         if seg.n == 0:
             raise AnalysisError(f"{where(scan.source)}: no usable turns left to fit "
                             f"(excluded: {self.excluded_text() or 'none'})")
-        self.seg = seg
-        # about 8+ chunks for short scans (small buffers), at most CHUNK_ROWS rows for long ones
-        self.chunk_rows = int(min(chunk_rows, max(4096, seg.n_rows // 8)))
+        self.seg, self._idx = seg, idx
+        self._means = None  # (segments, turn means, mean) of the used turns, on demand
+        # about 8+ chunks for short scans (small buffers), at most CHUNK_ROWS rows for long ones;
+        # the per-turn kernel has its own cache-sized chunks unless chunk_rows is given
+        self.chunk_rows = int(min(chunk_rows or CHUNK_ROWS, max(4096, seg.n_rows // 8)))
+        self._kernel_rows = KERNEL_CHUNK_ROWS if chunk_rows is None else int(chunk_rows)
         self._bounds = chunk_bounds(seg, self.chunk_rows)
         t = scan.time
         t_first, t_last = t[seg.start], t[seg.stop - 1]
         self.t_mid = 0.5 * (t_first + t_last)
         self.inv_half = 2.0 / (t_last - t_first)
         self.n_rows = seg.n_rows
-        y_sum = segment_sums(scan.signal, seg.start, seg.stop)
-        self.y_mean_turn = y_sum / seg.length
-        self.y_mean = float(y_sum.sum() / self.n_rows)
         self.t_lo, self.t_hi = float(t_first[0]), float(t_last[-1])
         self.aux_center = np.zeros(len(self.aux_names))
         self.aux_scale = np.ones(len(self.aux_names))
@@ -137,6 +137,27 @@ class TurnEngine:
         self.y_index = self.a_slice.stop
         self.q = self.y_index + 1
         self._harm_cache = None
+
+    # ------------------------------------------------------------------ turn means (on demand)
+    @functools.cached_property
+    def _y_sum_every(self) -> np.ndarray:
+        return segment_sums(self.scan.signal, self._every.start, self._every.stop)
+
+    def _turn_means(self):
+        if self._means is None or self._means[0] is not self.seg:
+            y_sum = self._y_sum_every[self._idx]
+            self._means = (self.seg, y_sum / self.seg.length, float(y_sum.sum() / self.n_rows))
+        return self._means
+
+    @property
+    def y_mean_turn(self) -> np.ndarray:
+        """Mean signal of every used turn."""
+        return self._turn_means()[1]
+
+    @property
+    def y_mean(self) -> float:
+        """Mean signal over the used rows."""
+        return self._turn_means()[2]
 
     def cache_harmonics(self, max_bytes: int = HARMONIC_CACHE_BYTES) -> bool:
         """Keep the harmonic columns between passes over the data (the joint fit reads the
@@ -167,13 +188,11 @@ class TurnEngine:
         keep = ~bad
         if not keep.any():
             raise AnalysisError(f"{where(self.scan.source)}: no usable turns left to fit ({self.excluded_text()})")
-        self.seg = self.seg.take(keep)
+        self.seg, self._idx = self.seg.take(keep), self._idx[keep]
         if self._harm_cache is not None:
             self._harm_cache = {}
         self.t_mid, self.inv_half = self.t_mid[keep], self.inv_half[keep]
-        self.y_mean_turn = self.y_mean_turn[keep]
         self.n_rows = self.seg.n_rows
-        self.y_mean = float((self.y_mean_turn * self.seg.length).sum() / self.n_rows)
         self.t_lo, self.t_hi = float(self.scan.time[self.seg.start[0]]), float(self.scan.time[self.seg.stop[-1] - 1])
         self._bounds = chunk_bounds(self.seg, self.chunk_rows)
 
@@ -292,42 +311,47 @@ class TurnEngine:
 
     # ------------------------------------------------------------------ per-turn solve
     def demodulate(self, *, delta=None) -> "PerTurn":
-        """Per-turn least squares of (signal − aux·delta) on per-turn drift + harmonics."""
-        p = self.n_drift + self.n_harm
-        nseg = self.seg.n
-        coef = np.full((nseg, p), np.nan)
-        cov_h = np.full((nseg, self.n_harm, self.n_harm), np.nan)
-        rss = np.full(nseg, np.nan)
-        ok = np.zeros(nseg, bool)
-        cols = list(range(p)) + [self.y_index]
-        for ch in self.chunks():
-            X = self.columns(ch, delta=delta)
-            Xp = X[cols] if self.n_aux else X
-            G = self.segment_gram(Xp, ch)
-            A, rhs = G[:, :p, :p], G[:, :p, p]
-            Ainv, good = stacked_inverse(A)
-            good &= ch.lengths > p
-            if not good.any():
-                continue
-            beta = np.einsum("sij,sj->si", Ainv, rhs)
-            beta[~good] = 0.0
-            # RSS = yᵀy − βᵀXᵀy loses digits only when the fit explains nearly all of yᵀy;
-            # then (ratio > RSS_FORMULA_MAX) the residuals of the chunk are formed explicitly.
-            yy = G[:, p, p]
-            rs = yy - np.einsum("si,si->s", beta, rhs)
-            if np.any(yy[good] > RSS_FORMULA_MAX * np.maximum(rs[good], 0.0)):
-                r = Xp[p].copy()
-                for j in range(p):
-                    r -= Xp[j] * beta[ch.sidx, j]
-                rs = np.add.reduceat(r * r, ch.lstarts)
-            sl = slice(ch.i0, ch.i1)
-            gi = np.flatnonzero(good) + ch.i0
-            coef[gi] = beta[good]
-            s2 = rs[good] / (ch.lengths[good] - p)
-            cov_h[gi] = Ainv[good][:, self.h_slice, self.h_slice] * s2[:, None, None]
-            rss[gi] = rs[good]
-            ok[sl] = good
-        return PerTurn(self, coef, cov_h, rss, ok, delta)
+        """Per-turn least squares of (signal − aux·delta) on per-turn drift + harmonics
+        (:class:`.kernel.TurnKernel`)."""
+        if not self.n_drift or self.drift_mode != "turn":
+            raise ValueError("per-turn demodulation needs a per-turn drift basis")
+        kern = TurnKernel(self.ks, self.degree, chunk_rows=self._kernel_rows)
+        correct = None
+        if delta is not None and self.n_aux:
+            delta = np.asarray(delta, dtype=float)
+            scan, center, scale = self.scan, self.aux_center, self.aux_scale
+
+            def correct(a, b, y):
+                for j, name in enumerate(self.aux_names):
+                    y -= delta[j] * ((scan.aux[name][a:b] - center[j]) / scale[j])
+
+        # every turn of the scan goes through the kernel (left-out turns are few), so that its
+        # chunks, and the numbers, are those of the same scan streamed in pieces
+        scan, every, i = self.scan, self._every, self._idx
+        sol = kern.run(scan.time, scan.angle, scan.signal, every, first_rows=scan.rows[every.start], correct=correct)
+        if i.size and i[-1] - i[0] == i.size - 1:  # the used turns are consecutive: views, no copies
+            i = slice(int(i[0]), int(i[-1]) + 1)
+        return PerTurn(self, sol.coef[i], sol.cov[i], sol.rss[i], sol.ok[i], delta)
+
+
+def turn_frame(turn, t_mid, n_samples, complete, harm, cov, rss, *, ks, unit, source, degree, excluded):
+    """The per-turn table (see :func:`nullfit.demodulate`) from per-turn arrays."""
+    import pandas as pd
+
+    n = np.asarray(n_samples).astype(np.int64)
+    d = {"turn": np.asarray(turn), "time_mid_s": np.asarray(t_mid), "n_samples": n}
+    for j, k in enumerate(ks):
+        d[f"c{k}"] = harm[:, 2 * j]
+        d[f"s{k}"] = harm[:, 2 * j + 1]
+        d[f"sigma_c{k}"] = np.sqrt(cov[:, 2 * j, 2 * j])
+        d[f"sigma_s{k}"] = np.sqrt(cov[:, 2 * j + 1, 2 * j + 1])
+    d["resid_rms"] = np.sqrt(rss / n)
+    d["complete"] = np.array(complete, dtype=bool)
+    df = pd.DataFrame(d)
+    df.attrs.update({"harmonics": list(ks), "unit": unit, "source": source,
+                     "drift": "per-turn" if degree == 1 else f"per-turn:{degree}",
+                     "excluded": {k: {"turns": v[0], "rows": v[1]} for k, v in excluded.items()}})
+    return df
 
 
 @dataclass
@@ -347,22 +371,6 @@ class PerTurn:
 
     def frame(self):
         """The per-turn table (see :func:`demodulate`)."""
-        import pandas as pd
-
         e = self.engine
-        seg = e.seg
-        n = seg.length.astype(np.int64)
-        d = {"turn": seg.turn, "time_mid_s": e.t_mid, "n_samples": n}
-        h = self.harm
-        for j, k in enumerate(e.ks):
-            d[f"c{k}"] = h[:, 2 * j]
-            d[f"s{k}"] = h[:, 2 * j + 1]
-            d[f"sigma_c{k}"] = np.sqrt(self.cov[:, 2 * j, 2 * j])
-            d[f"sigma_s{k}"] = np.sqrt(self.cov[:, 2 * j + 1, 2 * j + 1])
-        d["resid_rms"] = np.sqrt(self.rss / n)
-        d["complete"] = seg.complete.copy()
-        df = pd.DataFrame(d)
-        df.attrs.update({"harmonics": list(e.ks), "unit": e.scan.unit, "source": e.scan.source,
-                         "drift": "per-turn" if e.degree == 1 else f"per-turn:{e.degree}",
-                         "excluded": {k: {"turns": v[0], "rows": v[1]} for k, v in e.excluded.items()}})
-        return df
+        return turn_frame(e.seg.turn, e.t_mid, e.seg.length, e.seg.complete, self.harm, self.cov, self.rss,
+                          ks=e.ks, unit=e.scan.unit, source=e.scan.source, degree=e.degree, excluded=e.excluded)

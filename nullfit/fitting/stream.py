@@ -1,0 +1,415 @@
+"""Fitting a log read in chunks: the default fit and the per-turn table of a `ScanStream`.
+
+A log too large for memory is read as a :class:`nullfit.reading.stream.ScanStream` — chunks of
+readings in time order with global turn numbers — and fitted in one pass:
+
+* every turn is demodulated by the same kernel as an in-memory scan
+  (:class:`.kernel.TurnKernel`), so the numbers agree with :func:`nullfit.fit_scan` and
+  :func:`nullfit.demodulate` to rounding (the tests ask for 1e-12);
+* the kernel sums whole turns in chunks fixed by the source rows of their first readings, so a
+  streamed log is cut into exactly the chunks of the same log in memory; the readings of the
+  kernel chunk still open at the end of a stream chunk (at most ``kernel.CHUNK_ROWS`` readings
+  plus one turn) are carried over to the next, nothing else is kept.  Memory is one stream
+  chunk, the carried readings, the kernel's cache-sized buffers, and the per-turn results (a
+  few hundred bytes per turn) — never a full-length column;
+* facts known only after the whole log was seen — which turns are complete, dropped rows,
+  discrete marks — are applied at the end: partial and too-short turns are left out and
+  counted exactly as for a scan in memory, then the angle coverage is checked (from the sums
+  of every reading, not a sample) and the turn scatter is formed.
+
+Supported: per-turn drift (``"per-turn"``, ``"per-turn:d"``) with turn or block errors.  The
+joint HAC/OLS fits (which need a second pass for the residuals and, for HAC, their
+autocovariance) and auxiliary regressors (standardised over the whole log before the fit) are
+refused with an `AnalysisError`: read such a log into memory.
+
+:func:`fit_path` is the entry point for a file: it streams Parquet logs of at least
+``STREAM_MIN_BYTES`` (or when asked) through the reading stage's ``open_stream``, and reads
+smaller logs into memory.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+import sys
+import warnings
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from ..core.errors import AnalysisError, FitWarning, where
+from .design import check_harmonics, check_separable_sums, parse_drift
+from .engine import turn_frame
+from .estimate import RICE_SNR
+from .fit import FEW_TURNS, parse_errors
+from .kernel import TurnKernel
+from .linalg import stacked_inverse
+from .scanfit import ScanFit
+from .segments import Segments
+
+#: ``fit_path(..., stream="auto")`` streams Parquet logs of at least this many bytes.
+STREAM_MIN_BYTES = 1 << 30
+
+
+# ----------------------------------------------------------------------------- one pass
+@dataclasses.dataclass
+class StreamTurns:
+    """Per-turn results of one pass over a stream (every turn, in time order)."""
+
+    turn: np.ndarray
+    n: np.ndarray  # readings per turn
+    t_mid: np.ndarray
+    coef: np.ndarray  # (N, p): drift then harmonics
+    cov: np.ndarray  # (N, 2K, 2K)
+    rss: np.ndarray
+    ok: np.ndarray
+    coverage: np.ndarray  # Σ over every reading of the products of [1, harmonics]
+
+    def take(self, keep: np.ndarray) -> "StreamTurns":
+        """The turns flagged in ``keep``: views when they are consecutive (the usual case: only the
+        first and last turns are partial), else copies."""
+        i = np.flatnonzero(keep)
+        sel = slice(int(i[0]), int(i[-1]) + 1) if i.size and i[-1] - i[0] == i.size - 1 else i
+        return StreamTurns(self.turn[sel], self.n[sel], self.t_mid[sel], self.coef[sel], self.cov[sel],
+                           self.rss[sel], self.ok[sel], self.coverage)
+
+
+def _not_increasing(source) -> AnalysisError:
+    return AnalysisError(f"{where(source)}: turn numbers are not contiguous and increasing in time")
+
+
+_FIELDS = ("time", "angle", "signal", "turn", "rows")
+
+
+def stream_turns(stream, kernel: TurnKernel, *, progress=None) -> StreamTurns:
+    """Demodulate every turn of ``stream`` with ``kernel`` (one pass; see the module docstring).
+
+    The kernel sums turns in chunks fixed by the source rows of their first readings
+    (:meth:`.kernel.TurnKernel.chunk_keys`), exactly as for a scan in memory.  The readings of
+    the kernel chunk still open at the end of a stream chunk (at most ``chunk_rows`` readings and
+    one turn) are carried over; every other kernel chunk is fitted from views of the stream
+    chunk's arrays.
+    """
+    parts: list[tuple] = []
+    coverage = 0.0
+    carry: list[dict] = []  # pieces of the open kernel chunk
+    carry_key = None
+    last_turn = None
+
+    def solve(arrays):
+        nonlocal coverage
+        tr = arrays["turn"]
+        brk = np.flatnonzero(tr[1:] != tr[:-1]) + 1
+        start = np.r_[0, brk].astype(np.int64)
+        stop = np.r_[brk, tr.size].astype(np.int64)
+        labels = tr[start].astype(np.int64)
+        seg = Segments(start, stop, labels, np.ones(labels.size, bool))
+        sol = kernel.run(arrays["time"], arrays["angle"], arrays["signal"], seg, first_rows=arrays["rows"][start])
+        coverage = coverage + sol.harmonic_sums
+        parts.append((labels, seg.length, sol.t_mid, sol.coef, sol.cov, sol.rss, sol.ok))
+
+    def piece(ch, a, b, copy=False):
+        return {f: (np.array(getattr(ch, f)[a:b]) if copy else np.asarray(getattr(ch, f))[a:b]) for f in _FIELDS}
+
+    for ch in _chunks(stream, progress):
+        if ch.n == 0:
+            continue
+        tr = np.asarray(ch.turn)
+        starts = np.flatnonzero(tr[1:] != tr[:-1]) + 1
+        if last_turn is None or tr[0] != last_turn:
+            starts = np.r_[0, starts]
+        if tr.size > 1 and np.any(tr[1:] < tr[:-1]) or (last_turn is not None and tr[0] < last_turn):
+            raise _not_increasing(stream.source)
+        last_turn = int(tr[-1])
+        keys = kernel.chunk_keys(np.asarray(ch.rows)[starts])
+        prev = np.r_[carry_key if carry_key is not None else keys[0] - 1, keys[:-1]] if keys.size else keys
+        cuts = starts[keys != prev]  # where a new kernel chunk begins
+        if cuts.size == 0:  # the whole stream chunk continues the open kernel chunk
+            carry.append(piece(ch, 0, ch.n, copy=True))
+            continue
+        if carry:
+            carry.append(piece(ch, 0, int(cuts[0])))
+            solve({f: np.concatenate([c[f] for c in carry]) for f in _FIELDS})
+        if cuts[-1] > cuts[0]:
+            solve(piece(ch, int(cuts[0]), int(cuts[-1])))
+        carry = [piece(ch, int(cuts[-1]), ch.n, copy=True)]
+        carry_key = int(keys[np.searchsorted(starts, cuts[-1])])
+    if carry:
+        solve({f: np.concatenate([c[f] for c in carry]) for f in _FIELDS})
+    nh = 2 * len(kernel.ks)
+    if not parts:
+        return StreamTurns(np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0), np.zeros((0, kernel.p)),
+                           np.zeros((0, nh, nh)), np.zeros(0), np.zeros(0, bool), np.zeros((nh + 1, nh + 1)))
+    fields = []
+    for i in range(7):  # one field at a time: the parts of the others are not copied meanwhile
+        fields.append(np.concatenate([p[i] for p in parts]))
+        parts = [p[:i] + (None,) + p[i + 1:] for p in parts]
+    if np.any(fields[0][1:] <= fields[0][:-1]):  # a turn number seen again later
+        raise _not_increasing(stream.source)
+    return StreamTurns(*fields, coverage=np.asarray(coverage, dtype=float))
+
+
+def _chunks(stream, progress):
+    """The stream's chunks, with a tqdm progress bar over readings when ``progress`` (default:
+    when standard error is a terminal)."""
+    if progress is None:
+        progress = bool(getattr(sys.stderr, "isatty", lambda: False)())
+    if not progress:
+        yield from stream
+        return
+    from tqdm.auto import tqdm
+
+    with tqdm(total=stream.n_samples, unit="reading", unit_scale=True, desc=Path(str(stream.source)).name,
+              leave=False) as bar:
+        for ch in stream:
+            yield ch
+            bar.update(ch.n)
+
+
+# ----------------------------------------------------------------------------- exclusions
+class _Used:
+    """The turns a fit uses, with the exclusions counted as :class:`.engine.TurnEngine` counts them."""
+
+    def __init__(self, turns: StreamTurns, complete: np.ndarray, source, complete_only: bool, min_samples: int):
+        self.source = source
+        self.excluded: dict[str, tuple[int, int]] = {}
+        keep = np.ones(turns.turn.size, bool)
+        if complete_only and (~complete).any():
+            self.excluded["partial turns"] = (int((~complete).sum()), int(turns.n[~complete].sum()))
+            keep = complete.copy()
+        m = max(min_samples, 2)
+        few = keep & (turns.n < m)
+        if few.any():
+            self.excluded[f"turns with fewer than {m} readings"] = (int(few.sum()), int(turns.n[few].sum()))
+            keep &= ~few
+        if not keep.any():
+            raise AnalysisError(f"{where(source)}: no usable turns left to fit "
+                                f"(excluded: {self.excluded_text() or 'none'})")
+        self.turns = turns.take(keep)
+        self.complete = complete[keep]
+
+    def excluded_text(self) -> str:
+        return "; ".join(f"{n} {why} ({r} rows)" for why, (n, r) in self.excluded.items())
+
+    def drop(self, bad: np.ndarray, why: str) -> None:
+        if not bad.any():
+            return
+        n_old, r_old = self.excluded.get(why, (0, 0))
+        self.excluded[why] = (n_old + int(bad.sum()), r_old + int(self.turns.n[bad].sum()))
+        if bad.all():
+            raise AnalysisError(f"{where(self.source)}: no usable turns left to fit ({self.excluded_text()})")
+        self.turns = self.turns.take(~bad)
+        self.complete = self.complete[~bad]
+
+    @property
+    def excluded_rows(self) -> int:
+        return int(sum(r for _, r in self.excluded.values()))
+
+    @property
+    def excluded_turns(self) -> int:
+        return int(sum(n for n, _ in self.excluded.values()))
+
+
+def _frame(used: _Used, stream, ks, degree):
+    t = used.turns
+    return turn_frame(t.turn, t.t_mid, t.n, used.complete, t.coef[:, degree + 1:], t.cov, t.rss, ks=ks,
+                      unit=stream.unit, source=stream.source, degree=degree, excluded=used.excluded)
+
+
+def _pass(stream, ks, spec, complete_only, min_samples, progress) -> _Used:
+    turns = stream_turns(stream, TurnKernel(ks, spec.degree), progress=progress)
+    check_separable_sums(turns.coverage, ks, marks=stream.marks, source=stream.source)
+    if stream.turn_complete is None:
+        raise ValueError(f"{where(stream.source)}: the stream did not say which turns are complete "
+                         "(ScanStream.turn_complete is unset after a full pass)")
+    complete = np.asarray(stream.turn_complete, dtype=bool)
+    if turns.turn.size and int(turns.turn.max()) >= complete.size:
+        raise AnalysisError(f"{where(stream.source)}: the stream numbered {int(turns.turn.max()) + 1} turns but "
+                            f"flagged only {complete.size} as complete or not")
+    return _Used(turns, complete[turns.turn], stream.source, complete_only, min_samples)
+
+
+def _per_turn_spec(drift):
+    spec = parse_drift(drift)
+    if spec.kind != "per-turn":
+        raise ValueError(f"demodulate fits drift turn by turn: drift must be 'per-turn' or 'per-turn:d', "
+                         f"not {drift!r}")
+    return spec
+
+
+# ----------------------------------------------------------------------------- public
+def demodulate_stream(stream, *, harmonics=(1, 2), drift="per-turn", complete_only: bool = True, progress=None):
+    """The per-turn table of a streamed log: :func:`nullfit.demodulate` of a `ScanStream`
+    (same columns, attributes and exclusions; see the module docstring)."""
+    ks = check_harmonics(harmonics)
+    spec = _per_turn_spec(drift)
+    used = _pass(stream, ks, spec, complete_only, 1, progress)
+    return _frame(used, stream, ks, spec.degree)
+
+
+def fit_stream(stream, *, harmonics=(1, 2), drift="per-turn", errors="turns", block_turns: int | None = None,
+               complete_only: bool = True, aux=None, progress=None) -> ScanFit:
+    """:func:`nullfit.fit_scan` of a streamed log, for per-turn drift with turn or block errors.
+
+    Parameters are those of ``fit_scan``; ``progress`` shows a tqdm bar over the readings
+    (default: when standard error is a terminal).  HAC/OLS errors, other drift models and aux
+    regressors raise `AnalysisError` (they need the log in memory).
+    """
+    ks = check_harmonics(harmonics)
+    spec = parse_drift(drift)
+    kind, _, block_turns = parse_errors(errors, block_turns=block_turns)
+    if kind in ("turns", "blocks") and spec.kind != "per-turn":
+        raise ValueError(f"errors={kind!r} estimates the covariance from per-turn demodulation, which removes "
+                         f"drift turn by turn: use drift='per-turn', or errors='hac' with drift={spec.label!r}")
+    if kind not in ("turns", "blocks"):
+        raise AnalysisError(f"{where(stream.source)}: a streamed log is fitted with turn or block errors only; "
+                            f"errors={kind!r} needs the log in memory (read_scan, then fit_scan)")
+    if isinstance(aux, str):
+        aux = (aux,)
+    if aux:
+        raise AnalysisError(f"{where(stream.source)}: auxiliary regressors are not fitted on a streamed log; "
+                            "read it into memory (read_scan, then fit_scan with aux=...)")
+    nd, nh = spec.degree + 1, 2 * len(ks)
+    used = _pass(stream, ks, spec, complete_only, nd + nh + 1, progress)
+    used.drop(~used.turns.ok, "turns whose per-turn system is singular")
+    B = block_turns if kind == "blocks" else 1
+    sc = turn_scatter(used.turns.coef[:, nd:], used.turns.cov, B, source=stream.source,
+                      left=used.excluded_text() if used.excluded else "")
+    return _scan_fit(stream, ks, spec, kind, used, sc, B, complete_only, _frame(used, stream, ks, spec.degree))
+
+
+def turn_scatter(b, cov, block_turns: int = 1, *, source=None, left: str = "") -> dict:
+    """The turn-scatter step from per-turn arrays: mean of the per-turn coefficients ``b``
+    ``(N, 2K)``, covariance from the scatter of blocks of ``block_turns`` turns, and the χ² of the
+    turns about their mean with their white-noise covariances ``cov`` ``(N, 2K, 2K)``.
+
+    An adapter: the same arithmetic as ``nullfit.fitting.turn_errors.fit_turn_scatter`` without
+    aux terms, until that step is exposed as a function of per-turn arrays there.
+    """
+    N = b.shape[0]
+    nh = b.shape[1]
+    mean = b.mean(axis=0)
+    z = (b - mean) / N
+    n_blocks = -(-N // block_turns)
+    if n_blocks < 2:
+        raise AnalysisError(f"{where(source)}: {N} usable turn(s) make {n_blocks} block(s); the scatter needs "
+                            f"at least 2{f' (left out: {left})' if left else ''}")
+    blk = np.arange(N) // block_turns
+    Z = np.zeros((n_blocks, nh))
+    np.add.at(Z, blk, z)
+    cov_all = n_blocks / (n_blocks - 1) * (Z.T @ Z)
+    chi2, n_ok = 0.0, 0
+    for a in range(0, N, 1 << 16):  # in pieces: no second copy of the per-turn covariances
+        Cinv, okc = stacked_inverse(cov[a:a + (1 << 16)])
+        dev = b[a:a + (1 << 16)] - mean
+        chi2 += float(np.einsum("si,sij,sj->", dev[okc], Cinv[okc], dev[okc]))
+        n_ok += int(okc.sum())
+    return dict(coef=mean, cov=cov_all, n_blocks=n_blocks, cov_dof=n_blocks - 1, chi2=chi2,
+                chi2_n=int(nh * (n_ok - 1)))
+
+
+def _scan_fit(stream, ks, spec, kind, used: _Used, sc, B, complete_only, per_turn) -> ScanFit:
+    """The `ScanFit` of a streamed log, described as ``fit_scan`` describes a scan's."""
+    notes: list[str] = []
+    if used.excluded:
+        notes.append(f"left out: {used.excluded_text()} — not used in the fit")
+    for why, c in stream.dropped:
+        notes.append(f"{c} row(s) dropped while reading the log: {why}")
+    settings: dict[str, Any] = {"drift": spec.label, "drift_description": spec.description, "errors": kind,
+                                "complete_only": bool(complete_only), "aux": []}
+    N = used.turns.turn.size
+    nb = sc["n_blocks"]
+    if kind == "turns":
+        desc = (f"scatter of {N} per-turn coefficients (estimate = unweighted mean of the turns; "
+                f"covariance = sample covariance / N on {N - 1} dof; Student-t / Hotelling T²)")
+    else:
+        desc = (f"scatter of {nb} blocks of {B} turns (estimate = unweighted mean of the turns; "
+                f"{nb - 1} dof; Student-t / Hotelling T²)")
+        settings["block_turns"] = B
+    settings["errors_description"] = desc
+    nu = sc["cov_dof"]
+    units = "turns" if kind == "turns" else "blocks"
+    notes.append(f"covariance estimated from {nu + 1} {units}: only {nu} degrees of freedom; intervals and "
+                 "tests use Student-t (one coefficient) and Hotelling's T² (cos and sin jointly)")
+    if nu + 1 < FEW_TURNS:
+        msg = (f"only {nu + 1} {units} behind the covariance ({nu} dof): the σ are themselves uncertain "
+               f"by ~{100 / math.sqrt(2 * max(nu, 1)):.0f}%")
+        notes.append(msg)
+        warnings.warn(msg, FitWarning, stacklevel=3)
+    coef = np.array(sc["coef"], dtype=float)
+    cov = np.array(sc["cov"], dtype=float)
+    for j, k in enumerate(ks):
+        cv = cov[2 * j:2 * j + 2, 2 * j:2 * j + 2]
+        snr = math.hypot(coef[2 * j], coef[2 * j + 1]) / math.sqrt(max(0.5 * np.trace(cv), 1e-300))
+        if snr < RICE_SNR:
+            notes.append(f"A{k} is within {RICE_SNR:g} σ of zero: amplitude ± σ is biased upward (Rice); "
+                         "use nullfit.upper_limit for a limit")
+    for a in (coef, cov):
+        a.setflags(write=False)
+    n_used = int(used.turns.n.sum())
+    scan_dropped = int(sum(c for _, c in stream.dropped))
+    excluded = {why: {"turns": t, "rows": r} for why, (t, r) in used.excluded.items()}
+    return ScanFit(
+        harmonics=ks, coef=coef, cov=cov, dof=nu, n_samples=n_used, n_turns=N,
+        dropped_rows=scan_dropped + used.excluded_rows, scan_dropped_rows=scan_dropped,
+        excluded_rows=used.excluded_rows, excluded_turns=used.excluded_turns, drift=spec.label, errors=kind,
+        settings=settings, residual_rms=float(math.sqrt(float(np.nansum(used.turns.rss)) / n_used)),
+        chi2=sc["chi2"], chi2_dof_n=sc["chi2_n"], residuals=None, per_turn=per_turn, aux_names=(),
+        block_turns=B if kind == "blocks" else None, unit=stream.unit, source=stream.source, excluded=excluded,
+        notes=tuple(notes))
+
+
+# ----------------------------------------------------------------------------- files
+def is_parquet(path) -> bool:
+    """Whether ``path`` is a Parquet file (magic bytes ``PAR1``)."""
+    try:
+        with open(path, "rb") as f:
+            return f.read(4) == b"PAR1"
+    except OSError:
+        return False
+
+
+def fit_path(path, *, stream="auto", progress=None, chunk_rows: int | None = None, read_options=None,
+             **fit_options) -> ScanFit:
+    """Fit a log file, streaming it when it is large.
+
+    Parameters
+    ----------
+    path : str or Path
+    stream : {"auto", True, False}
+        ``"auto"`` streams Parquet logs of at least ``STREAM_MIN_BYTES``; ``True`` always streams;
+        ``False`` reads the log into memory (:func:`nullfit.read_scan` + :func:`nullfit.fit_scan`).
+    progress : bool, optional
+        tqdm progress bar over the chunks of a streamed log (default: on a terminal).
+    chunk_rows : int, optional
+        Readings per chunk, passed to the reader's ``open_stream``.
+    read_options : dict, optional
+        Keywords of ``read_scan`` / ``open_stream`` (columns, ``manifest``, ``angle_unit`` …).
+    **fit_options
+        Keywords of ``fit_scan`` (:func:`fit_stream` for a streamed log).
+
+    When the reading stage offers no ``open_stream``, the log is read into memory and the fit
+    carries a note saying so.
+    """
+    read_options = dict(read_options or {})
+    if stream not in ("auto", True, False):
+        raise ValueError(f"stream must be 'auto', True or False, not {stream!r}")
+    use = stream is True or (stream == "auto" and is_parquet(path) and Path(path).stat().st_size >= STREAM_MIN_BYTES)
+    note = None
+    if use:
+        try:
+            from ..reading.stream import open_stream
+        except ImportError:
+            note = "read into memory: this installation has no streaming reader (nullfit.reading.stream.open_stream)"
+        else:
+            if chunk_rows is not None:
+                read_options["chunk_rows"] = chunk_rows
+            return fit_stream(open_stream(path, **read_options), progress=progress, **fit_options)
+    from ..reading.files import read_scan
+    from .fit import fit_scan
+
+    fit = fit_scan(read_scan(path, **read_options), **fit_options)
+    if note is not None:
+        fit = dataclasses.replace(fit, notes=fit.notes + (note,))
+    return fit
