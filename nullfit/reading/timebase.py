@@ -10,6 +10,7 @@ below 2**53 ns (about 104 days) are then exact to the nanosecond.
 
 from __future__ import annotations
 
+import functools
 from decimal import ROUND_HALF_EVEN, Decimal, InvalidOperation
 
 import numpy as np
@@ -19,6 +20,9 @@ NS_PER_S = 1_000_000_000
 UNIX_THRESHOLD_S = 1e8
 #: The largest Unix time that fits int64 nanoseconds (2262-04-11), rounded down.
 UNIX_MAX_S = 9.2e9
+_BLOCK = 1 << 16
+_FRAC_BITS = 22  # fractional bits of a float64 in [2**30, 2**31)
+_TABLE_FROM = 1 << 25  # inputs at least this long build the table of the binade
 
 
 def decimal_seconds_to_ns(tokens) -> tuple[np.ndarray, np.ndarray]:
@@ -60,28 +64,96 @@ def decimal_seconds_to_ns(tokens) -> tuple[np.ndarray, np.ndarray]:
     return ns, ok
 
 
-def float_seconds_to_ns(values) -> tuple[np.ndarray, np.ndarray]:
+def _fraction_ns(center: np.ndarray, half: np.ndarray) -> np.ndarray:
+    """The shortest decimal fraction (ns, as floats) within ``half`` of ``center`` (both in ns)."""
+    frac = np.rint(center)  # 9 digits: the fallback (an ulp below 1 ns never occurs above 1e8 s)
+    todo = None
+    for digits in range(3):  # few digits: cheap when most values are round
+        unit = 10.0 ** (9 - digits)
+        c = center if todo is None else center[todo]
+        h = half if todo is None else half[todo]
+        cand = np.rint(c / unit)
+        cand *= unit
+        hit = np.abs(cand - c) < h
+        if todo is None:
+            frac[hit] = cand[hit]
+            todo = np.flatnonzero(~hit)
+        else:
+            frac[todo[hit]] = cand[hit]
+            todo = todo[~hit]
+        if todo.size == 0:
+            return frac
+    c, h = center[todo], half[todo]
+    lo = np.full(todo.size, 3)
+    hi = np.full(todo.size, 9)  # the answer lies in [lo, hi]; 9 digits always "hit" (fallback)
+    while True:
+        open_ = lo < hi
+        if not open_.any():
+            break
+        mid = (lo + hi) // 2
+        unit = 10.0 ** (9 - mid)
+        hit = np.abs(np.rint(c / unit) * unit - c) < h
+        hi = np.where(open_ & hit, mid, hi)
+        lo = np.where(open_ & ~hit, mid + 1, lo)
+    unit = 10.0 ** (9 - lo)
+    cand = np.rint(c / unit) * unit
+    frac[todo] = np.where(lo < 9, cand, np.rint(c))
+    return frac
+
+
+@functools.lru_cache(maxsize=1)
+def _binade_table() -> np.ndarray:
+    """Shortest decimal fraction (ns) of every float in [2**30, 2**31) s (2004-01-10 to 2038-01-19),
+    indexed by its 22 fractional bits: within one binade the fraction decides the digits alone."""
+    f = np.arange(1 << _FRAC_BITS, dtype=np.float64)
+    center = f * (NS_PER_S / 2.0**_FRAC_BITS)  # exact: f·1e9 < 2**53, and a power-of-two division
+    half = np.full(f.size, NS_PER_S * 2.0 ** -(_FRAC_BITS + 1))
+    return np.concatenate([_fraction_ns(center[i: i + _BLOCK], half[i: i + _BLOCK])
+                           for i in range(0, f.size, _BLOCK)]).astype(np.int32)
+
+
+def float_seconds_to_ns(values, *, table: bool | None = None) -> tuple[np.ndarray, np.ndarray]:
     """Convert float seconds to int64 nanoseconds, reading each float as its shortest decimal
     representation (so ``1800000000.1234567`` gives ``...123456700`` ns, as its text would).
 
     Vectorised: the whole seconds are exact; for the fraction, the decimal with the fewest digits
     (0 to 9) that lies strictly within half a unit in the last place of the float is chosen, which
-    is what the shortest round-trip representation (``repr``) gives.  Returns ``(ns, ok)`` as
-    :func:`decimal_seconds_to_ns`."""
+    is what the shortest round-trip representation (``repr``) gives.  A decimal of ``d`` digits
+    within half an ulp is also one of ``d + 1`` digits, so the fewest digits are found by trying
+    0, 1 and 2 digits on the values still open (regular sampling ends here) and a binary search
+    over 3..9 digits for the rest.  Within one binade the answer depends on the fractional bits
+    alone, so the times of 2004–2038 (the binade [2**30, 2**31) s) can be looked up in a table of
+    all 2**22 fractions (16 MB, built once in about a second and kept): ``table=True`` uses it (a
+    reader that converts many chunks), ``None`` uses it for very long inputs or once it exists.
+    Returns ``(ns, ok)`` as :func:`decimal_seconds_to_ns`."""
     v = np.asarray(values, dtype=float).ravel()
+    if table is None:
+        table = v.size >= _TABLE_FROM or bool(_binade_table.cache_info().currsize)
+    if v.size > _BLOCK:  # in blocks: the temporaries stay in cache
+        parts = [_seconds_to_ns(v[i: i + _BLOCK], table) for i in range(0, v.size, _BLOCK)]
+        return np.concatenate([p[0] for p in parts]), np.concatenate([p[1] for p in parts])
+    return _seconds_to_ns(v, table)
+
+
+def _seconds_to_ns(v: np.ndarray, table: bool):
+    lo, hi = (float(v.min()), float(v.max())) if v.size else (0.0, 0.0)
+    if table and lo >= 2.0**30 and hi < 2.0**31:  # one binade, all finite
+        sec = np.floor(v)
+        f = v - sec
+        f *= 2.0**_FRAC_BITS
+        ns = sec.astype(np.int64)
+        ns *= NS_PER_S
+        ns += _binade_table()[f.astype(np.int64)]
+        return ns, np.ones(v.size, bool)
     ok = np.isfinite(v) & (np.abs(v) < UNIX_MAX_S)
     w = np.where(ok, v, 0.0)
     sec = np.floor(w)
-    center = (w - sec) * NS_PER_S  # the exact fraction, in ns (relative error ~1e-16)
-    half = np.spacing(np.abs(w)) / 2 * NS_PER_S  # half an ulp, in ns
-    frac = np.rint(center)
-    done = np.zeros(v.size, bool)
-    for digits in range(10):
-        unit = 10.0 ** (9 - digits)
-        cand = np.rint(center / unit) * unit
-        hit = ~done & (np.abs(cand - center) < half)
-        frac[hit] = cand[hit]
-        done |= hit
+    center = w - sec
+    center *= NS_PER_S  # the exact fraction, in ns (relative error ~1e-16)
+    # half an ulp, in ns: 2**(exponent - 53) built from the exponent bits (np.spacing is slow)
+    half = (((w.view(np.int64) >> 52) & 0x7FF) - 53 << 52).view(np.float64)
+    half *= NS_PER_S
+    frac = _fraction_ns(center, half)
     ns = sec.astype(np.int64) * NS_PER_S + frac.astype(np.int64)
     return np.where(ok, ns, 0), ok
 
