@@ -106,7 +106,8 @@ class TurnCounter:
         self.prev_krow = None  # turn index k of the last final reading
         self.prev_prog = math.nan
         self.open: np.ndarray | None = None  # record of the open turn
-        self.closed: list[np.ndarray] = []
+        self.closed: list[np.ndarray] = []  # records of closed turns that may be partial
+        self.plain: list[tuple] = []  # (first reading, readings, sense) of the other closed turns
         self.bins = np.zeros(COVERAGE_BINS, np.int64)
         self.phi_lo, self.phi_hi = math.inf, -math.inf
 
@@ -287,7 +288,8 @@ class TurnCounter:
             self.closed.append(rec[:-1][cand[:-1]])
             plain = rec[:-1][~cand[:-1]]
             if plain.size:
-                self.closed.append(plain)
+                self.plain.append((plain[:, 0].astype(np.int64), plain[:, 1].astype(np.int32),
+                                   plain[:, 7].astype(np.int8)))
             self.open = rec[-1].copy()
         self.prev_prog = float(prog[p - 1])
         self.prev_k = int(kf[-1]) if nf and int(sseg(nf - 1)) == lseg.size - 1 else None
@@ -343,6 +345,7 @@ class TurnCounter:
         has_prev, has_next = rec[:, 8] > 0, rec[:, 9] > 0
         cand = ~(has_prev & has_next & (count >= 3))
         pmin, pmax, maxstep = rec[:, 3].copy(), rec[:, 4], rec[:, 2]
+        sense = rec[:, 7].astype(np.int64)
         seg_starts = np.array(self.seg_starts, np.int64)
         for g in range(1, seg_starts.size):  # after a reversal the turning point starts the segment's first turn
             j = int(np.searchsorted(start, seg_starts[g]))
@@ -358,9 +361,15 @@ class TurnCounter:
                          self.bins @ (_COS * _SIN)], dtype=float)
         sums -= rec[cand & ~complete, 11:16].sum(axis=0)
         n_cov = int(self.bins.sum() - count[cand & ~complete].sum())
-        return TurnInfo(start=start, count=count, complete=complete, sense=rec[:, 7].astype(np.int64),
-                        seg_starts=seg_starts, coverage_sums=sums, coverage_n=n_cov, phi_lo=self.phi_lo,
-                        phi_hi=self.phi_hi)
+        if self.plain:  # merge the turns that were complete when they closed
+            p_start = np.concatenate([p[0] for p in self.plain] + [start])
+            order = np.argsort(p_start, kind="stable")
+            start = p_start[order]
+            count = np.concatenate([p[1] for p in self.plain] + [count]).astype(np.int64)[order]
+            sense = np.concatenate([p[2] for p in self.plain] + [sense]).astype(np.int64)[order]
+            complete = np.concatenate([np.ones(sum(p[0].size for p in self.plain), bool), complete])[order]
+        return TurnInfo(start=start, count=count, complete=complete, sense=sense, seg_starts=seg_starts,
+                        coverage_sums=sums, coverage_n=n_cov, phi_lo=self.phi_lo, phi_hi=self.phi_hi)
 
 
 @dataclass(frozen=True)

@@ -104,10 +104,7 @@ class LogCheck:
         self._frac = 0.0
         self._mode = None  # "epoch" (given), "unix", "rel"
         if epoch_unix is not None:
-            e = float(epoch_unix)
-            if not (math.isfinite(e) and abs(e) < UNIX_MAX_S):
-                raise ValueError(f"epoch_unix must be Unix seconds before the year 2262, not {epoch_unix!r}")
-            self.epoch, self._frac, self._mode = int(math.floor(e)), e - math.floor(e), "epoch"
+            self.set_epoch(epoch_unix)
         self._prev_t = self._prev_row = None
         self.lo, self.hi = math.inf, -math.inf
         self.ymin, self.ymax, self.y0 = math.inf, -math.inf, None
@@ -115,6 +112,29 @@ class LogCheck:
         self._h_move = LogHistogram()  # |raw steps| > 1e-9 (declared radians only)
         self._rad = np.zeros(5, np.int64)  # moving +, moving -, big +, big -, whole-numbered values
         self.steps = StepStats()
+
+    def set_epoch(self, epoch_unix) -> None:
+        """The Unix seconds of ``time == 0`` (a fraction moves into the times); a chunked reader
+        sets it once its time column has shown the epoch, before the first kept reading."""
+        e = float(epoch_unix)
+        if not (math.isfinite(e) and abs(e) < UNIX_MAX_S):
+            raise ValueError(f"epoch_unix must be Unix seconds before the year 2262, not {epoch_unix!r}")
+        self.epoch, self._frac, self._mode = int(math.floor(e)), e - math.floor(e), "epoch"
+
+    @property
+    def decided(self) -> bool:
+        """Has the time base (epoch or relative) been fixed?"""
+        return self._mode is not None
+
+    def relative_time(self, t: np.ndarray) -> np.ndarray:
+        """The relative times :meth:`add_kept` makes of kept times ``t`` (no checks): for a
+        chunked reader's later passes."""
+        if self._mode == "unix":
+            ns, _ = float_seconds_to_ns(t)
+            return (ns - self.epoch * NS_PER_S).astype(float) / NS_PER_S
+        if self._mode == "epoch" and self._frac:
+            return t + self._frac
+        return t
 
     def _fault(self, kind: str, msg: str) -> None:
         self.errors.setdefault(kind, msg)
@@ -269,6 +289,8 @@ class LogCheck:
         for kind in _ORDER:
             if kind in self.errors:
                 raise ScanError(self.errors[kind])
+        order = [NONFINITE_REASON] + [aux_reason(n) for n in self.aux_names]  # the same whatever the chunks
+        self.drops = {why: self.drops[why] for why in order if why in self.drops}
         return self.steps.finish(math.radians(self.hyst_deg))
 
     def _unit_fault(self):
