@@ -394,9 +394,10 @@ class TimeDecoder:
                                     f"({(first - plan.start_ns) / NS_PER_S:+.6g} s); the manifest contradicts the log")
             if self.epoch is None:
                 return np.full(ns.size, np.nan)
-            if ok.all():
-                t = (ns - self.epoch * NS_PER_S).astype(float)
-                t /= NS_PER_S
+            if ok.all() and ns.flags.writeable:  # relative seconds over the nanoseconds: no second array
+                ns -= self.epoch * NS_PER_S
+                t = ns.view(np.float64)
+                np.true_divide(ns, NS_PER_S, out=t)
                 return t
             t = (np.where(ok, ns, self.epoch * NS_PER_S) - self.epoch * NS_PER_S).astype(float) / NS_PER_S
             t[~ok] = np.nan

@@ -89,19 +89,19 @@ def _parquet_names(p: Path, src: str) -> list[str]:
         raise ScanError(f"{src}: not a readable Parquet file ({one_line(err)[:200]})") from None
 
 
-def _read_parquet(p: Path, src: str, wanted: list[str]):
-    """``({name: pyarrow.ChunkedArray}, number of rows)`` of the wanted columns."""
+def _parquet_column(p: Path, src: str):
+    """``get(name)``: one column of a Parquet log as a pyarrow ChunkedArray, read when asked for
+    (the columns are converted one at a time, so only one is held in Arrow's memory at once)."""
     import pyarrow as pa
     import pyarrow.parquet as pq
 
-    try:
-        table = pq.read_table(p, columns=wanted, use_threads=True)
-    except (pa.ArrowException, OSError, ValueError, TypeError, OverflowError, KeyError) as err:
-        raise ScanError(f"{src}: not a readable Parquet file ({one_line(err)[:200]})") from None
-    n = table.num_rows
-    out = {name: table.column(i) for i, name in enumerate(wanted)}
-    del table
-    return out, n
+    def get(name):
+        try:
+            return pq.ParquetFile(p).read(columns=[name], use_threads=True).column(0)
+        except (pa.ArrowException, OSError, ValueError, TypeError, OverflowError, KeyError) as err:
+            raise ScanError(f"{src}: not a readable Parquet file ({one_line(err)[:200]})") from None
+
+    return get
 
 
 def read_scan(path, *, time=None, angle=None, signal=None, angle_unit=None, manifest=None,
@@ -180,9 +180,8 @@ def read_scan(path, *, time=None, angle=None, signal=None, angle_unit=None, mani
         n = _parquet_rows(p, src)
         if n == 0:
             raise ScanError(f"{src}: the log has column names but no data rows")
-        chosen, aux_names = resolve_columns(names, kw, man, src)
-        data, n = _read_parquet(p, src, list(dict.fromkeys([*chosen.values(), *aux_names])))
-        return Scan.from_table(data.pop, names, n, src, man, kw, angle_unit, signal_unit, nonfinite, owned=True)
+        return Scan.from_table(_parquet_column(p, src), names, n, src, man, kw, angle_unit, signal_unit, nonfinite,
+                               owned=True)
     data = None
     header = read_header(p, src)
     if header is not None:

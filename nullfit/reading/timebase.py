@@ -130,8 +130,10 @@ def float_seconds_to_ns(values, *, table: bool | None = None) -> tuple[np.ndarra
     if table is None:
         table = v.size >= _TABLE_FROM or bool(_binade_table.cache_info().currsize)
     if v.size > _BLOCK:  # in blocks: the temporaries stay in cache
-        parts = [_seconds_to_ns(v[i: i + _BLOCK], table) for i in range(0, v.size, _BLOCK)]
-        return np.concatenate([p[0] for p in parts]), np.concatenate([p[1] for p in parts])
+        ns, ok = np.empty(v.size, np.int64), np.empty(v.size, bool)
+        for i in range(0, v.size, _BLOCK):
+            ns[i: i + _BLOCK], ok[i: i + _BLOCK] = _seconds_to_ns(v[i: i + _BLOCK], table)
+        return ns, ok
     return _seconds_to_ns(v, table)
 
 

@@ -388,9 +388,11 @@ def check_columns(time, angle, signal, *, angle_unit="deg", epoch_unix=None, sig
         t, a, y, aux_arr, rows = chk.drop_nonfinite(t, a, y, aux_arr, rows)
         n = t.size
         blocks = [slice(i, min(n, i + BLOCK)) for i in range(0, n, BLOCK)]
-        t_rel = np.empty(n)
+        t_rel = t if owned and not any(np.may_share_memory(t, i) for i in inputs) else np.empty(n)
         for sl in blocks:  # in blocks: the temporaries stay small and in cache
-            t_rel[sl] = chk.add_kept(t[sl], a[sl], y[sl], rows[sl])[0]
+            out = chk.add_kept(t[sl], a[sl], y[sl], rows[sl])[0]
+            if t_rel is not t or not np.may_share_memory(out, t):
+                t_rel[sl] = out
         summary = chk.finish()
         unw, phi = Unwrapper(summary), np.empty(n)
         look, gaps = SecondLook(summary.tol, hyst), GapFinder(summary.interval)
