@@ -63,8 +63,7 @@ def _decimal_ns(col) -> np.ndarray:
     return np.concatenate(parts) if parts else np.zeros(0, np.int64)
 
 
-def time_values(col, name: str, src: str, rows: np.ndarray, declared: str | None, mode: str | None = None,
-                table: bool | None = None):
+def time_values(col, name: str, src: str, rows: np.ndarray, declared: str | None, mode: str | None = None):
     """``("abs", ns, ok)`` or ``("rel", seconds)`` for a time column of plain type, else None.  The
     first finite value decides between relative and Unix seconds, unless ``mode`` (``"abs"`` or
     ``"rel"``, decided by an earlier chunk) says."""
@@ -123,5 +122,5 @@ def time_values(col, name: str, src: str, rows: np.ndarray, declared: str | None
         return ("abs", np.where(finite, ns, 0), finite)
     if pa.types.is_decimal(t):
         return None
-    ns, ok = float_seconds_to_ns(vals, table=table)
+    ns, ok = float_seconds_to_ns(vals)
     return ("abs", ns, ok)

@@ -366,17 +366,15 @@ class TimeDecoder:
     finite value decides between relative and Unix seconds, the first valid absolute time fixes
     the epoch (and is checked against the manifest's ``start_utc``) for every later chunk."""
 
-    def __init__(self, plan: Plan, table: bool | None = None):
+    def __init__(self, plan: Plan):
         self.plan = plan
-        self.table = table  # see nullfit.reading.timebase.float_seconds_to_ns
         self.mode = None  # "abs" or "rel", once a finite value has been seen
         self.epoch = None
         self._shift = None  # seconds added to relative times (manifest start_utc)
 
     def decode(self, col, rows: np.ndarray) -> np.ndarray:
         plan, name = self.plan, self.plan.cols["time"]
-        info = (arrow_time_values(col, name, plan.src, rows, plan.time_declared, self.mode, self.table)
-                if is_arrow(col) else None)
+        info = arrow_time_values(col, name, plan.src, rows, plan.time_declared, self.mode) if is_arrow(col) else None
         if info is None:
             series = col.to_pandas() if is_arrow(col) else col
             info = _time_column(series, name, plan.src, rows, plan.time_declared, plan.time_origin, self.mode)

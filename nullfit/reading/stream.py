@@ -153,9 +153,6 @@ class ScanStream:
 # ---------------------------------------------------------------------------------- Parquet in chunks
 #: Readings per chunk by default (8 MB per float column).
 DEFAULT_CHUNK_ROWS = 1 << 20
-#: Logs with at least this many rows convert float Unix times through the table of
-#: :func:`nullfit.reading.timebase.float_seconds_to_ns`.
-_TABLE_ROWS = 1 << 23
 #: Kinds of column error, in the order the in-memory reader meets them (time, angle, signal, unit).
 _COLUMN_ORDER = ("time", "angle", "signal")
 
@@ -208,9 +205,7 @@ class _StreamReader:
             raise ScanError(f"{src}: the log has column names but no data rows")
         self.src, self.man, self.chunk_rows = src, man, chunk_rows
         self.plan = plan = Plan(names, src, man, kw, angle_unit, signal_unit)
-        # the float-time table costs about a second to build: worth it when the time column is converted
-        # four times over millions of rows
-        self.decoder = TimeDecoder(plan, table=True if n >= _TABLE_ROWS else None)
+        self.decoder = TimeDecoder(plan)
         self.chk = LogCheck(source=src, columns=plan.cols, aux_names=tuple(plan.aux), angle_unit=plan.angle_unit,
                             nonfinite=nonfinite, angle_unit_origin=plan.angle_origin)
         self.meta: list[tuple] = []  # per chunk: first row, rows, kept-row mask (packed) or None, first kept index

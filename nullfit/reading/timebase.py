@@ -10,7 +10,6 @@ below 2**53 ns (about 104 days) are then exact to the nanosecond.
 
 from __future__ import annotations
 
-import functools
 from decimal import ROUND_HALF_EVEN, Decimal, InvalidOperation
 
 import numpy as np
@@ -22,7 +21,7 @@ UNIX_THRESHOLD_S = 1e8
 UNIX_MAX_S = 9.2e9
 _BLOCK = 1 << 16
 _FRAC_BITS = 22  # fractional bits of a float64 in [2**30, 2**31)
-_TABLE_FROM = 1 << 25  # inputs at least this long build the table of the binade
+_BINADE_FROM = 1 << 16  # inputs at least this long look fractions up (see float_seconds_to_ns)
 
 
 def decimal_seconds_to_ns(tokens) -> tuple[np.ndarray, np.ndarray]:
@@ -101,18 +100,7 @@ def _fraction_ns(center: np.ndarray, half: np.ndarray) -> np.ndarray:
     return frac
 
 
-@functools.lru_cache(maxsize=1)
-def _binade_table() -> np.ndarray:
-    """Shortest decimal fraction (ns) of every float in [2**30, 2**31) s (2004-01-10 to 2038-01-19),
-    indexed by its 22 fractional bits: within one binade the fraction decides the digits alone."""
-    f = np.arange(1 << _FRAC_BITS, dtype=np.float64)
-    center = f * (NS_PER_S / 2.0**_FRAC_BITS)  # exact: f·1e9 < 2**53, and a power-of-two division
-    half = np.full(f.size, NS_PER_S * 2.0 ** -(_FRAC_BITS + 1))
-    return np.concatenate([_fraction_ns(center[i: i + _BLOCK], half[i: i + _BLOCK])
-                           for i in range(0, f.size, _BLOCK)]).astype(np.int32)
-
-
-def float_seconds_to_ns(values, *, table: bool | None = None) -> tuple[np.ndarray, np.ndarray]:
+def float_seconds_to_ns(values) -> tuple[np.ndarray, np.ndarray]:
     """Convert float seconds to int64 nanoseconds, reading each float as its shortest decimal
     representation (so ``1800000000.1234567`` gives ``...123456700`` ns, as its text would).
 
@@ -122,31 +110,51 @@ def float_seconds_to_ns(values, *, table: bool | None = None) -> tuple[np.ndarra
     within half an ulp is also one of ``d + 1`` digits, so the fewest digits are found by trying
     0, 1 and 2 digits on the values still open (regular sampling ends here) and a binary search
     over 3..9 digits for the rest.  Within one binade the answer depends on the fractional bits
-    alone, so the times of 2004–2038 (the binade [2**30, 2**31) s) can be looked up in a table of
-    all 2**22 fractions (16 MB, built once in about a second and kept): ``table=True`` uses it (a
-    reader that converts many chunks), ``None`` uses it for very long inputs or once it exists.
-    Returns ``(ns, ok)`` as :func:`decimal_seconds_to_ns`."""
+    alone: for long inputs of the years 2004–2038 (the binade [2**30, 2**31) s, 22 fractional
+    bits) it is worked out once per distinct fraction and looked up.  Returns ``(ns, ok)`` as
+    :func:`decimal_seconds_to_ns`."""
     v = np.asarray(values, dtype=float).ravel()
-    if table is None:
-        table = v.size >= _TABLE_FROM or bool(_binade_table.cache_info().currsize)
+    if v.size >= _BINADE_FROM and 2.0**30 <= float(v.min()) and float(v.max()) < 2.0**31:
+        ns = _binade_to_ns(v)
+        if ns is not None:
+            return ns, np.ones(v.size, bool)
     if v.size > _BLOCK:  # in blocks: the temporaries stay in cache
         ns, ok = np.empty(v.size, np.int64), np.empty(v.size, bool)
         for i in range(0, v.size, _BLOCK):
-            ns[i: i + _BLOCK], ok[i: i + _BLOCK] = _seconds_to_ns(v[i: i + _BLOCK], table)
+            ns[i: i + _BLOCK], ok[i: i + _BLOCK] = _seconds_to_ns(v[i: i + _BLOCK])
         return ns, ok
-    return _seconds_to_ns(v, table)
+    return _seconds_to_ns(v)
 
 
-def _seconds_to_ns(v: np.ndarray, table: bool):
-    lo, hi = (float(v.min()), float(v.max())) if v.size else (0.0, 0.0)
-    if table and lo >= 2.0**30 and hi < 2.0**31:  # one binade, all finite
-        sec = np.floor(v)
-        f = v - sec
-        f *= 2.0**_FRAC_BITS
-        ns = sec.astype(np.int64)
-        ns *= NS_PER_S
-        ns += _binade_table()[f.astype(np.int64)]
-        return ns, np.ones(v.size, bool)
+def _binade_to_ns(v: np.ndarray) -> np.ndarray | None:
+    """:func:`float_seconds_to_ns` for floats all in [2**30, 2**31): the fraction of each distinct
+    22-bit fractional part is found once (by :func:`_fraction_ns`) and looked up; None when most
+    fractions are distinct (nothing to share)."""
+    frac_bits = np.empty(v.size, np.int32)
+    for i in range(0, v.size, _BLOCK):
+        w = v[i: i + _BLOCK]
+        f = w - np.floor(w)
+        f *= 2.0**_FRAC_BITS  # exact: the 22 fractional bits as an integer
+        frac_bits[i: i + _BLOCK] = f
+    seen = np.zeros(1 << _FRAC_BITS, bool)
+    seen[frac_bits] = True
+    keys = np.flatnonzero(seen)
+    if 2 * keys.size > v.size:
+        return None  # mostly distinct fractions: the direct route is quicker
+    table = np.zeros(1 << _FRAC_BITS, np.int64)
+    # the exact fraction in ns: f·1e9 < 2**53 and the division by a power of two is exact
+    table[keys] = _fraction_ns(keys * (NS_PER_S / 2.0**_FRAC_BITS),
+                               np.full(keys.size, NS_PER_S * 2.0 ** -(_FRAC_BITS + 1)))
+    ns = np.empty(v.size, np.int64)
+    for i in range(0, v.size, _BLOCK):
+        out = ns[i: i + _BLOCK]
+        out[:] = np.floor(v[i: i + _BLOCK])
+        out *= NS_PER_S
+        out += table[frac_bits[i: i + _BLOCK]]
+    return ns
+
+
+def _seconds_to_ns(v: np.ndarray):
     ok = np.isfinite(v) & (np.abs(v) < UNIX_MAX_S)
     w = np.where(ok, v, 0.0)
     sec = np.floor(w)
