@@ -84,6 +84,22 @@ def time_values(col, name: str, src: str, rows: np.ndarray, declared: str | None
         ns = np.asarray(pc.fill_null(pc.cast(ns_col, pa.int64()), 0).to_numpy(zero_copy_only=False), np.int64)
         return ("abs", ns, ok)
     text = pa.types.is_string(t) or pa.types.is_large_string(t)
+    if text and mode != "rel":  # Unix seconds as plain decimals: one exact parse to nanoseconds
+        try:
+            dec = pc.cast(col, pa.decimal128(20, 9))
+        except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+            dec = None
+        if dec is not None:
+            valid = ~np.asarray(pc.is_null(dec).to_numpy(zero_copy_only=False), dtype=bool)
+            ns = _decimal_ns(dec)
+            first = int(np.argmax(valid)) if valid.any() else -1
+            limit = int(UNIX_MAX_S) * NS_PER_S
+            every = bool(valid.all())
+            if mode == "abs" or (first >= 0 and ns[first] > UNIX_THRESHOLD_S * NS_PER_S):
+                inner = ns if every else ns[valid]
+                if inner.size == 0 or (-limit < int(inner.min()) and int(inner.max()) < limit):
+                    out = ns if every and ns.flags.writeable else np.where(valid, ns, 0)
+                    return ("abs", out, valid)
     if text:
         try:
             vals = pc.cast(col, pa.float64())

@@ -113,11 +113,25 @@ def read_header(path: Path, src: str) -> list[str] | None:
         return None
 
 
+def _has_nul(col) -> bool:
+    """Does any value of a pyarrow string column contain a NUL character?  (A scan of the bytes
+    of the values, chunk by chunk; ``pyarrow.compute.match_substring`` is ten times slower.)"""
+    import numpy as np
+
+    for ch in col.chunks:
+        if len(ch) == 0:
+            continue
+        offsets = np.frombuffer(ch.buffers()[1], dtype=np.int32)[ch.offset: ch.offset + len(ch) + 1]
+        data = np.frombuffer(ch.buffers()[2], dtype=np.uint8)[offsets[0]: offsets[-1]]
+        if data.size and not data.all():
+            return True
+    return False
+
+
 def read_csv_arrow(path: Path, header: list[str], time_name: str, wanted: list[str]):
     """``{name: pyarrow.ChunkedArray}`` for the ``wanted`` columns (the time column as text), or None
     (see the module docstring)."""
     import pyarrow as pa
-    import pyarrow.compute as pc
     import pyarrow.csv as pcsv
 
     size = path.stat().st_size
@@ -146,8 +160,7 @@ def read_csv_arrow(path: Path, header: list[str], time_name: str, wanted: list[s
             return None
         table = table.slice(0, table.num_rows - trailing)
     for c in [index[time_name]] + others:
-        col = table.column(c)
-        if col.null_count < len(col) and pc.any(pc.match_substring(col, "\x00")).as_py():
+        if _has_nul(table.column(c)):
             return None
     out = {w: table.column(c) for w, c in index.items()}
     del table

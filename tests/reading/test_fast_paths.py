@@ -199,3 +199,14 @@ def test_histogram_counts_zeros_apart():
     h.add(np.array([0.0, 0.0, 0.0, 1.0, 2.0]))
     assert h.median() == 0.0 and h.median(above=0.0) == pytest.approx(1.0, rel=2.0**-10)
     assert LogHistogram().median() is None
+
+
+@pytest.mark.parametrize("where_", ["time", "extra"])
+def test_nul_bytes_anywhere_are_refused_as_binary(tmp_path, where_):
+    n = 40
+    lines = ["time_s,angle_deg,fringe,comment"] + [f"{EPOCH + i}.5,{i * 22.5 % 360},{np.cos(i)!r},ok" for i in range(n)]
+    lines[7] = lines[7].replace(".5,", ".5\x00,") if where_ == "time" else lines[7] + "\x00"
+    p = tmp_path / "nul.csv"
+    p.write_bytes(("\n".join(lines) + "\n").encode())
+    with pytest.raises(ScanError, match=r"nul\.csv, line 8: the file contains NUL characters"):
+        read_scan(p)
