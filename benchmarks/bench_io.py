@@ -5,6 +5,7 @@ Run from the repository root::
     python benchmarks/bench_io.py                   # 1e6 and 1e7 readings
     python benchmarks/bench_io.py --sizes 1e6       # quicker
     python benchmarks/bench_io.py --repeat 5        # more repetitions (the best is kept)
+    python benchmarks/bench_io.py --sizes 1e6 --stream 1e8   # and open_stream on 1e8 readings
 
 The log is invented: three float64 columns — Unix-second epochs (1.25 s apart from 2027-01-15),
 a table angle modulo 360° at 72 readings per turn, and a 2θ signal with white noise — written
@@ -18,7 +19,9 @@ temporary directory that is deleted at the end.  For every size and format it pr
   over the chunks, consuming nothing),
 
 the best wall-clock time over ``--repeat`` runs and the peak memory, and the ratios of
-``read_scan`` to the alternative.  Every measurement runs in a fresh child process (so one
+``read_scan`` to the alternative.  ``--stream N`` adds one run of ``open_stream`` + one
+iteration over a Parquet log of N readings 0.3 s apart written row group by row group (1e8
+readings: a 1.3 GB file, 2.4 GB of columns), the reading part of a streamed fit.  Every measurement runs in a fresh child process (so one
 cannot warm or bloat another), the kinds interleaved in every repetition so that a busy machine
 slows them alike.  Peak memory is the child's peak resident set size (``resource.getrusage``
 ``ru_maxrss`` of the child itself) minus its resident set size just before the read (after the
@@ -94,12 +97,32 @@ def write_logs(n: int, directory: str) -> dict[str, str]:
     return paths
 
 
+def write_parquet_in_groups(n: int, directory: str, group: int = 1 << 20) -> str:
+    """The log of :func:`write_logs` but 0.3 s apart (a turn every 21.6 s: 1e8 readings span 347 days,
+    within the 1e8 s a log may span), Parquet only, written one row group at a time."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    path = os.path.join(directory, f"stream{n}.parquet")
+    rng = np.random.default_rng(1)
+    schema = pa.schema([("time_s", pa.float64()), ("angle_deg", pa.float64()), ("fringe", pa.float64())])
+    with pq.ParquetWriter(path, schema) as w:
+        for a in range(0, n, group):
+            i = np.arange(a, min(n, a + group))
+            ang = np.mod(i * 5.0 + 2.5, 360.0)
+            y = 0.01 * np.cos(2 * np.deg2rad(ang)) + rng.normal(0, 0.01, i.size)
+            w.write_table(pa.table({"time_s": 1.8e9 + i * 0.3, "angle_deg": ang, "fringe": y}, schema=schema))
+    return path
+
+
 def measure(kind: str, path: str, repeat: int) -> dict:
     env = dict(os.environ)
     root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
     env["PYTHONPATH"] = root + os.pathsep + env.get("PYTHONPATH", "")
     out = subprocess.run([sys.executable, "-c", CHILD, kind, path, str(repeat)], capture_output=True, text=True,
-                         env=env, check=True)
+                         env=env)
+    if out.returncode:
+        raise RuntimeError(f"{kind} on {path} failed:\n{out.stderr}")
     return json.loads(out.stdout.strip().splitlines()[-1])
 
 
@@ -107,6 +130,7 @@ def main(argv=None) -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--sizes", default="1e6,1e7", help="comma-separated numbers of readings")
     ap.add_argument("--repeat", type=int, default=3, help="repetitions (fresh processes; the best is kept)")
+    ap.add_argument("--stream", default=None, help="also time open_stream on a Parquet log of this many readings")
     args = ap.parse_args(argv)
     sizes = [int(float(s)) for s in args.sizes.split(",")]
     directory = tempfile.mkdtemp(prefix="nullfit-bench-io-")
@@ -141,6 +165,16 @@ def main(argv=None) -> None:
                       f"{r['peak_added'] / (24 * n):.2f}× the three columns")
             for p in paths.values():
                 os.remove(p)
+        if args.stream:
+            n = int(float(args.stream))
+            t0 = time.perf_counter()
+            path = write_parquet_in_groups(n, directory)
+            print(f"\n{n:.0e} readings in row groups of 2**20 (three float64 columns = {24 * n / 1e9:.2f} GB; Parquet "
+                  f"{os.path.getsize(path) / 1e9:.2f} GB; written in {time.perf_counter() - t0:.0f} s)")
+            r = measure("open_stream", path, 1)
+            print(f"  open_stream + one iteration: {r['time']:.1f} s, peak added {r['peak_added'] / 1e6:.0f} MB "
+                  f"({r['peak_added'] / 2**30:.2f} GiB)")
+            os.remove(path)
     finally:
         shutil.rmtree(directory, ignore_errors=True)
 

@@ -27,7 +27,12 @@ class MarkBins:
     def feed(self, angle_rad: np.ndarray) -> None:
         if angle_rad.size == 0:
             return
-        idx = (np.mod(np.rad2deg(angle_rad), 360.0) / MARK_BIN_DEG).astype(np.int64) % _NBINS
+        q = np.rad2deg(angle_rad)
+        q *= 1.0 / MARK_BIN_DEG
+        np.floor(q, out=q)  # bin number on the unwrapped angle, then modulo one turn (np.mod is slow)
+        q -= _NBINS * np.floor(q * (1.0 / _NBINS))
+        idx = q.astype(np.int64)
+        idx[idx >= _NBINS] = 0  # rounding at the top of the turn
         if idx.size > _NBINS // 8:
             self.occupied |= np.bincount(idx, minlength=_NBINS) > 0
         else:

@@ -196,7 +196,7 @@ class _StreamReader:
             raise ScanError(f"{src}: not a Parquet file; only Parquet logs are read in chunks (read a CSV log with "
                             "read_scan, or write it to Parquet first)")
         try:
-            self.pf = pq.ParquetFile(p)
+            self.pf = pq.ParquetFile(p, pre_buffer=False)  # pre-buffering holds the row groups read so far
             names = [str(n) for n in self.pf.schema_arrow.names]
             n = int(self.pf.metadata.num_rows)
         except (pa.ArrowException, OSError, ValueError, TypeError, OverflowError) as err:

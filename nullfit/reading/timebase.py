@@ -141,7 +141,7 @@ def _binade_to_ns(v: np.ndarray) -> np.ndarray | None:
     keys = np.flatnonzero(seen)
     if 2 * keys.size > v.size:
         return None  # mostly distinct fractions: the direct route is quicker
-    table = np.zeros(1 << _FRAC_BITS, np.int64)
+    table = np.zeros(1 << _FRAC_BITS, np.int32)  # fractions < 1e9 ns
     # the exact fraction in ns: f·1e9 < 2**53 and the division by a power of two is exact
     table[keys] = _fraction_ns(keys * (NS_PER_S / 2.0**_FRAC_BITS),
                                np.full(keys.size, NS_PER_S * 2.0 ** -(_FRAC_BITS + 1)))
