@@ -388,7 +388,8 @@ def check_columns(time, angle, signal, *, angle_unit="deg", epoch_unix=None, sig
         t, a, y, aux_arr, rows = chk.drop_nonfinite(t, a, y, aux_arr, rows)
         n = t.size
         blocks = [slice(i, min(n, i + BLOCK)) for i in range(0, n, BLOCK)]
-        t_rel = t if owned and not any(np.may_share_memory(t, i) for i in inputs) else np.empty(n)
+        # relative times are written over the times when those are ours (a reader's, or compacted here)
+        t_rel = t if (owned or t is not inputs[0]) and t.flags.writeable else np.empty(n)
         for sl in blocks:  # in blocks: the temporaries stay small and in cache
             out = chk.add_kept(t[sl], a[sl], y[sl], rows[sl])[0]
             if t_rel is not t or not np.may_share_memory(out, t):
