@@ -63,6 +63,39 @@ def _decimal_ns(col) -> np.ndarray:
     return np.concatenate(parts) if parts else np.zeros(0, np.int64)
 
 
+def _decimal_times(col, mode):
+    """Times from a decimal column with at most nine fractional digits (a CSV time column is read
+    as ``decimal128(20, 9)`` when it can be): Unix seconds as their exact nanoseconds; relative
+    seconds as floats — the nanoseconds over 1e9, which is the correctly rounded value of the
+    decimal while the nanoseconds stay below 2**53 (104 days); None otherwise (careful route)."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    if col.type.scale > 9:
+        return None
+    if col.type != pa.decimal128(20, 9):
+        try:
+            col = pc.cast(col, pa.decimal128(20, 9))
+        except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+            return None
+    valid = ~np.asarray(pc.is_null(col).to_numpy(zero_copy_only=False), dtype=bool)
+    every = bool(valid.all())
+    ns = _decimal_ns(col)
+    ns = ns.copy() if every and not ns.flags.writeable else ns if every else np.where(valid, ns, 0)
+    first = 0 if every else int(np.argmax(valid)) if valid.any() else -1
+    lo, hi = (int(ns.min()), int(ns.max())) if ns.size else (0, 0)
+    if mode == "abs" or (mode is None and first >= 0 and ns[first] > UNIX_THRESHOLD_S * NS_PER_S):
+        limit = int(UNIX_MAX_S) * NS_PER_S
+        return ("abs", ns, valid) if -limit < lo and hi < limit else None
+    if max(-lo, hi) >= 2**53:
+        return None
+    vals = ns.astype(np.float64)
+    vals /= NS_PER_S
+    if not every:
+        vals[~valid] = np.nan
+    return ("rel", vals)
+
+
 def time_values(col, name: str, src: str, rows: np.ndarray, declared: str | None, mode: str | None = None):
     """``("abs", ns, ok)`` or ``("rel", seconds)`` for a time column of plain type, else None.  The
     first finite value decides between relative and Unix seconds, unless ``mode`` (``"abs"`` or
@@ -83,6 +116,8 @@ def time_values(col, name: str, src: str, rows: np.ndarray, declared: str | None
         ok = ~np.asarray(pc.is_null(ns_col).to_numpy(zero_copy_only=False), dtype=bool)
         ns = np.asarray(pc.fill_null(pc.cast(ns_col, pa.int64()), 0).to_numpy(zero_copy_only=False), np.int64)
         return ("abs", ns, ok)
+    if pa.types.is_decimal(t):
+        return _decimal_times(col, mode)
     text = pa.types.is_string(t) or pa.types.is_large_string(t)
     if text and mode != "rel":  # Unix seconds as plain decimals: one exact parse to nanoseconds
         try:

@@ -142,24 +142,30 @@ def read_csv_arrow(path: Path, header: list[str], time_name: str, wanted: list[s
     index = {w: names[header.index(w)] for w in wanted}
     others = [c for c in names if c not in index.values()]
     types = {c: pa.float64() for c in index.values()}
-    types[index[time_name]] = pa.string()
     types.update({c: pa.string() for c in others})  # validated as UTF-8, checked for NUL below
-    try:
-        table = pcsv.read_csv(
-            path,
-            read_options=pcsv.ReadOptions(skip_rows=1, column_names=names, block_size=1 << 22),
-            parse_options=pcsv.ParseOptions(delimiter=",", quote_char='"', double_quote=True, escape_char=False,
-                                            newlines_in_values=False, ignore_empty_lines=False),
-            convert_options=pcsv.ConvertOptions(column_types=types, include_columns=list(index.values()) + others,
-                                                null_values=list(ARROW_NULLS), strings_can_be_null=True,
-                                                quoted_strings_can_be_null=True, check_utf8=True))
-    except (pa.ArrowException, OSError, ValueError, UnicodeError):
-        return None
+    # the time column as decimals with nine fractional digits (parsed exactly, in parallel with the
+    # rest); when some cell is not such a decimal, as text (nan, exponents, more digits, ISO ...)
+    for time_type in (pa.decimal128(20, 9), pa.string()):
+        types[index[time_name]] = time_type
+        try:
+            table = pcsv.read_csv(
+                path,
+                read_options=pcsv.ReadOptions(skip_rows=1, column_names=names, block_size=1 << 22),
+                parse_options=pcsv.ParseOptions(delimiter=",", quote_char='"', double_quote=True, escape_char=False,
+                                                newlines_in_values=False, ignore_empty_lines=False),
+                convert_options=pcsv.ConvertOptions(column_types=types,
+                                                    include_columns=list(index.values()) + others,
+                                                    null_values=list(ARROW_NULLS), strings_can_be_null=True,
+                                                    quoted_strings_can_be_null=True, check_utf8=True))
+            break
+        except (pa.ArrowException, OSError, ValueError, UnicodeError):
+            if time_type == pa.string():
+                return None
     if trailing:
         if table.num_rows < trailing:
             return None
         table = table.slice(0, table.num_rows - trailing)
-    for c in [index[time_name]] + others:
+    for c in others + ([index[time_name]] if pa.types.is_string(table.column(index[time_name]).type) else []):
         if _has_nul(table.column(c)):
             return None
     out = {w: table.column(c) for w, c in index.items()}
