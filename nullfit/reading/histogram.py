@@ -53,22 +53,26 @@ class LogHistogram:
         v = np.ascontiguousarray(values, dtype=np.float64)
         if v.size == 0:
             return
-        keys = v.view(np.int64) >> SHIFT
-        kmin = int(keys.min())
-        if kmin < _KEY_TINY:
-            tiny = keys < _KEY_TINY
+        lo, hi = float(v.min()), float(v.max())  # the key is monotonic in the value (values ≥ 0)
+        if lo < TINY:
+            tiny = v < TINY
             self.n_zero += int(np.count_nonzero(tiny))
-            keys = keys[~tiny]
-            if keys.size == 0:
+            v = v[~tiny]
+            if v.size == 0:
                 return
-            kmin = int(keys.min())
-        kmax = int(keys.max())
+            lo = float(v.min())
+        kmin, kmax = _key(lo), _key(hi)
         self._grow(kmin, kmax)
+        if kmin == kmax:  # one bin (a steady rate, a regular clock)
+            self.counts[kmin - self.lo] += v.size
+            return
+        keys = v.view(np.int64) >> SHIFT
         if keys.size < _SPARSE_BELOW or (kmax - kmin) > 4 * keys.size:
             uk, cnt = np.unique(keys, return_counts=True)
             self.counts[uk - self.lo] += cnt
         else:
-            self.counts[kmin - self.lo: kmax - self.lo + 1] += np.bincount(keys - kmin, minlength=kmax - kmin + 1)
+            keys -= kmin
+            self.counts[kmin - self.lo: kmax - self.lo + 1] += np.bincount(keys, minlength=kmax - kmin + 1)
 
     def add_counts(self, other: "LogHistogram", sign: int = 1) -> "LogHistogram":
         """A new histogram: this one plus (``sign=1``) or minus (``sign=-1``) ``other``."""
