@@ -89,15 +89,16 @@ class StepStats:
         # moving steps by sign: [continuous +, continuous -, big-step cont +, -, big-step mod +, -]
         self.signs = np.zeros(6, np.int64)
 
-    def add(self, a: np.ndarray, t: np.ndarray | None = None) -> None:
-        """Feed the next readings: raw angles ``a`` (radians) and their times (seconds) or None."""
+    def add(self, a: np.ndarray, t: np.ndarray | None = None, lo: float | None = None, hi: float | None = None):
+        """Feed the next readings: raw angles ``a`` (radians) and their times (seconds) or None;
+        ``lo`` and ``hi``, when the caller knows them, are ``a.min()`` and ``a.max()``."""
         if a.size == 0:
             return
         if self._with_time is None:
             self._with_time = t is not None
         self.n += a.size
-        self.lo = min(self.lo, float(a.min()))
-        self.hi = max(self.hi, float(a.max()))
+        self.lo = min(self.lo, float(a.min()) if lo is None else lo)
+        self.hi = max(self.hi, float(a.max()) if hi is None else hi)
         d = _steps(self._prev_a, a)
         self._prev_a = float(a[-1])
         if self._with_time:

@@ -191,11 +191,12 @@ class LogCheck:
         if t.size == 0:
             return t, a
         t = self._time(t, rows)
-        a_rad = self._angles(a, rows)
+        a_rad, lo, hi = self._angles(a, rows)
         self.ymin, self.ymax = min(self.ymin, float(y.min())), max(self.ymax, float(y.max()))
         if self.y0 is None:
             self.y0 = float(y[0])
-        self.steps.add(a_rad, t)
+        # deg2rad is monotonic, so the extremes of the radians are those of the degrees converted
+        self.steps.add(a_rad, t, *((math.radians(lo), math.radians(hi)) if self.unit == "deg" else (lo, hi)))
         return t, a_rad
 
     def to_rad(self, a: np.ndarray) -> np.ndarray:
@@ -227,11 +228,13 @@ class LogCheck:
         elif self._mode == "epoch" and self._frac:
             t = t + self._frac
         # strictly increasing (across chunks too)
-        if self._prev_t is None:
-            dt, first = np.diff(t), 1
-        else:
-            dt, first = np.diff(t, prepend=self._prev_t), 0
-        if dt.size and not (dt > 0).all():
+        first = 1 if self._prev_t is None else 0
+        dt = np.empty(t.size - first)
+        if first == 0:
+            dt[0] = t[0] - self._prev_t
+        np.subtract(t[1:], t[:-1], out=dt[1 - first:])
+        increasing = bool((dt > 0).all())
+        if dt.size and not increasing:
             j = int(np.argmin(dt > 0))
             i = j + first
             prev_t = t[i - 1] if i > 0 else self._prev_t
@@ -240,7 +243,8 @@ class LogCheck:
             self._fault("time_order", f"{where(src, int(rows[i]), col)}: {kind} time ({t[i]:.9g} s after "
                                       f"{prev_t:.9g} s in row {prev_row}); times must strictly increase")
         self._prev_t, self._prev_row = float(t[-1]), int(rows[-1])
-        if float(t.min()) < -MAX_RELATIVE_S or float(t.max()) > MAX_RELATIVE_S:
+        t_lo, t_hi = (float(t[0]), float(t[-1])) if increasing else (float(t.min()), float(t.max()))
+        if t_lo < -MAX_RELATIVE_S or t_hi > MAX_RELATIVE_S:
             i = int(np.argmax(np.abs(t) > MAX_RELATIVE_S))
             self._fault("time_far", f"{where(src, int(rows[i]), col)}: time {t[i]:.9g} s from the "
                                     f"{'epoch' if self.epoch is not None else 'start'} is more than 1e8 s (3 years) "
@@ -256,7 +260,7 @@ class LogCheck:
                                      f"{self.unit} is more than a billion turns; not a turntable angle")
         self.lo, self.hi = min(self.lo, lo), max(self.hi, hi)
         if self.unit == "deg":
-            return np.deg2rad(a)
+            return np.deg2rad(a), lo, hi
         d = np.diff(a) if self._prev_raw is None else np.diff(a, prepend=self._prev_raw)
         self._prev_raw = float(a[-1])
         ad = np.abs(d)
@@ -265,7 +269,7 @@ class LogCheck:
         big = ad > 300.0
         self._rad += [np.count_nonzero(d > 1e-9), np.count_nonzero(d < -1e-9), np.count_nonzero(big & (d > 0)),
                       np.count_nonzero(big & (d < 0)), np.count_nonzero(a - np.floor(a) < 1e-9)]
-        return a
+        return a, lo, hi
 
     # -------------------------------------------------------------- the whole log
     def finish(self):
