@@ -46,7 +46,8 @@ def continuous_log(n, rng):
 
 def marks_log(turns, rng):
     """16 marks, 4 readings per mark with ±0.01° encoder jitter, the start mark read again at the
-    end of every turn, the table turning back every 7 turns; relative times."""
+    end of every turn, the table turning back every 7 turns; relative times (68 readings per turn:
+    15 000 turns are a million rows)."""
     seq, sgn, pos = [], 1, 0
     for k in range(turns):
         if k and k % 7 == 0:
@@ -98,7 +99,8 @@ def logs(tmp_path_factory):
     big = continuous_log(1_000_000, rng)
     return {"big": write(d / "big.parquet", big),
             "small": write(d / "small.parquet", continuous_log(12_000, rng), 3000),
-            "marks": write(d / "marks.parquet", marks_log(160, rng), 10_000), "dir": d}
+            "marks": write(d / "marks.parquet", marks_log(15_000, rng), 50_000),
+            "small marks": write(d / "small_marks.parquet", marks_log(160, rng), 3_000), "dir": d}
 
 
 @pytest.mark.parametrize("chunk_rows", [4099, 65536, 1 << 20])
@@ -117,12 +119,13 @@ def test_very_small_chunks(logs, chunk_rows):
                               scan)
 
 
-@pytest.mark.parametrize("chunk_rows", [13, 68, 4096])
-def test_marks_with_the_start_mark_read_again_and_reversals(logs, chunk_rows):
+@pytest.mark.parametrize("log,chunk_rows,reversals", [("marks", 4096, 2142), ("marks", 65536, 2142),
+                                                      ("small marks", 13, 22), ("small marks", 68, 22)])
+def test_marks_with_the_start_mark_read_again_and_reversals(logs, log, chunk_rows, reversals):
     kw = dict(time="t", angle="theta", signal="dnu", signal_unit="fractional")
-    scan = read_quiet(lambda: read_scan(logs["marks"], **kw))
-    assert scan.marks == 16 and scan.n_reversals == 22 and scan.epoch_unix is None
-    assert_stream_equals_scan(read_quiet(lambda: open_stream(logs["marks"], chunk_rows=chunk_rows, **kw)), scan)
+    scan = read_quiet(lambda: read_scan(logs[log], **kw))
+    assert scan.marks == 16 and scan.n_reversals == reversals and scan.epoch_unix is None
+    assert_stream_equals_scan(read_quiet(lambda: open_stream(logs[log], chunk_rows=chunk_rows, **kw)), scan)
 
 
 def test_the_stream_agrees_with_the_in_memory_adapter(logs):
