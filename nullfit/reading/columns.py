@@ -1,11 +1,14 @@
 """The columns of a log table: which column plays which role, and how its values are parsed.
 
 Shared by every table source (CSV, Parquet, a pandas DataFrame): given a way to fetch a column
-as a pandas Series, :func:`frame_fields` resolves the time, angle, signal and auxiliary columns
-(keyword, then manifest, then default), parses times (relative seconds, Unix seconds, ISO-8601)
-to exact nanoseconds, and checks the declared units, returning the arguments of
-:func:`nullfit.reading.validate.check_columns`.  Every problem is a one-line `ScanError`
-naming the file, row and column.
+(a pandas Series, or a pyarrow array from the file readers), :func:`frame_fields` resolves the
+time, angle, signal and auxiliary columns (keyword, then manifest, then default; the ``aux``
+keyword replaces the manifest's ``[columns] aux`` list), parses times (relative seconds, Unix
+seconds, ISO-8601) to exact nanoseconds, and checks the declared units, returning the arguments
+of :func:`nullfit.reading.validate.check_columns`.  Arrow columns of plain types take the fast
+route of :mod:`nullfit.reading.arrow_columns`; anything else goes through pandas, value by value
+where it must, to name the first offending row.  Every problem is a one-line `ScanError` naming
+the file, row and column.
 """
 
 from __future__ import annotations
@@ -18,9 +21,13 @@ import numpy as np
 
 from ..core.conventions import SIGNAL_UNITS
 from ..core.errors import ScanError, where
+from .arrow_columns import is_arrow
+from .arrow_columns import numeric as arrow_numeric
+from .arrow_columns import time_values as arrow_time_values
+from .histogram import LogHistogram
 from .manifest import Manifest
 from .timebase import (NS_PER_S, UNIX_MAX_S, UNIX_THRESHOLD_S, decimal_seconds_to_ns, float_seconds_to_ns,
-                       ns_to_iso, split_epoch, utc_to_ns)
+                       ns_to_iso, utc_to_ns)
 
 DEFAULT_COLUMNS = {"time": "time_s", "angle": "angle_deg", "signal": "fringe"}
 #: Spellings of a missing value (compared after stripping, case-insensitively).
@@ -77,6 +84,21 @@ def resolve_columns(names: list[str], kw: dict[str, str | None], man: Manifest |
             raise ScanError(f"{where(src, None, name)}: the same column was chosen as {seen[name]} and {role}")
         seen[name] = role
     aux: list[str] = []
+    kw_aux = kw.get("aux")
+    if kw_aux is not None:
+        listed = [kw_aux] if isinstance(kw_aux, str) else [str(a) for a in kw_aux]
+        for name in listed:
+            if name not in names:
+                hint = difflib.get_close_matches(name, names, n=1, cutoff=0.6)
+                hint_s = f"; did you mean {hint[0]!r}?" if hint else ""
+                raise ScanError(f"{where(src, None, name)}: no such column (check aux=; columns: "
+                                f"{list_names(names)}){hint_s}")
+            if name in seen:
+                raise ScanError(f"{where(src, None, name)}: aux= lists the {seen[name]} column")
+            if name in aux:
+                raise ScanError(f"{where(src, None, name)}: aux= lists the column twice")
+            aux.append(name)
+        return chosen, aux
     for name in (man.aux_columns if man is not None else ()):
         if name not in names:
             raise ScanError(f"{where(src, None, name)}: no such column, although {man.path} [columns] aux lists "
@@ -170,7 +192,7 @@ def _numeric_column(series, col: str, src: str, rows: np.ndarray) -> np.ndarray:
     return num
 
 
-def _time_column(series, col: str, src: str, rows: np.ndarray, declared: str | None, origin: str):
+def _time_column(series, col: str, src: str, rows: np.ndarray, declared: str | None, origin: str, mode=None):
     """Read the time column: ``("abs", ns, ok)`` for absolute times or ``("rel", seconds)``."""
     import pandas as pd
 
@@ -197,13 +219,10 @@ def _time_column(series, col: str, src: str, rows: np.ndarray, declared: str | N
         if declared == "iso":
             refuse_numbers()
         vals = series.to_numpy(dtype=float, na_value=np.nan)
-        text = None
-        if pd.api.types.is_integer_dtype(series.dtype):  # whole seconds: exact via their text
-
-            def text():
-                return np.array([str(v) for v in series.to_numpy(dtype=object)])
-
-        return _numbers_to_time(vals, text, col, src, rows)
+        ints = None
+        if pd.api.types.is_integer_dtype(series.dtype) and not series.isna().any():  # whole seconds: exact
+            ints = series.to_numpy(dtype=np.int64)
+        return _numbers_to_time(vals, None, col, src, rows, mode, ints)
     if kind in ("bool", "complex"):
         raise ScanError(f"{where(src, None, col)}: the time column holds "
                         f"{'true/false values' if kind == 'bool' else 'complex numbers'}, not times")
@@ -215,7 +234,7 @@ def _time_column(series, col: str, src: str, rows: np.ndarray, declared: str | N
         if not bad.any():
             if declared == "iso" and (~missing).any():
                 refuse_numbers()
-            return _numbers_to_time(num, lambda: stripped.fillna("nan").to_numpy(dtype=str), col, src, rows)
+            return _numbers_to_time(num, lambda: stripped.fillna("nan").to_numpy(dtype=str), col, src, rows, mode)
         values = series.to_numpy(dtype=object)
     else:
         values = series.to_numpy(dtype=object)
@@ -228,7 +247,7 @@ def _time_column(series, col: str, src: str, rows: np.ndarray, declared: str | N
                 return np.array([v.strip() if isinstance(v, str) else str(v) if isinstance(v, Decimal)
                                  else repr(float(x)) for v, x in zip(values, num)])
 
-            return _numbers_to_time(num, text, col, src, rows)
+            return _numbers_to_time(num, text, col, src, rows, mode)
     first_bad = int(np.flatnonzero(bad)[0])
     if declared == "s":
         raise _bad_value(src, rows[first_bad], col, values[first_bad],
@@ -270,17 +289,20 @@ def _datetimes_to_ns(ser, original, col, src, rows):
     return ("abs", ns, ok)
 
 
-def _numbers_to_time(vals: np.ndarray, text, col, src, rows):
-    """Relative seconds, or Unix seconds (first finite value > 1e8) converted exactly to ns:
-    from their decimal text (``text()``, when given) or from the floats' shortest representation."""
+def _numbers_to_time(vals: np.ndarray, text, col, src, rows, mode=None, ints=None):
+    """Relative seconds, or Unix seconds (first finite value > 1e8, unless ``mode`` says which)
+    converted exactly to ns: from whole numbers (``ints``), from their decimal text (``text()``,
+    when given) or from the floats' shortest representation."""
     fin = np.flatnonzero(np.isfinite(vals))
-    if fin.size == 0 or not vals[fin[0]] > UNIX_THRESHOLD_S:
+    if mode == "rel" or (mode is None and (fin.size == 0 or not vals[fin[0]] > UNIX_THRESHOLD_S)):
         return ("rel", vals)
     over = np.isfinite(vals) & ~(np.abs(vals) < UNIX_MAX_S)
     if over.any():
         i = int(np.flatnonzero(over)[0])
         raise ScanError(f"{where(src, int(rows[i]), col)}: time {vals[i]:.9g} s is too large in magnitude for Unix "
                         f"seconds (limit {UNIX_MAX_S:.2g} s, the year 2261); not a time in seconds")
+    if ints is not None:
+        return ("abs", ints * NS_PER_S, np.ones(ints.size, bool))
     ns, ok = float_seconds_to_ns(vals)
     if text is not None:  # texts with more than 15 significant digits: exact decimal conversion
         txt = text()
@@ -302,70 +324,147 @@ def check_options(angle_unit, signal_unit, nonfinite) -> None:
         raise ScanError(f"nonfinite must be 'drop' or 'raise', not {nonfinite!r}")
 
 
+class Plan:
+    """Which column plays which role and in which unit, for one table (see :func:`frame_fields`)."""
+
+    def __init__(self, names, src, man, kw, angle_unit, signal_unit):
+        self.src, self.man = src, man
+        self.cols, self.aux = resolve_columns(names, kw, man, src)
+        units = dict(man.units) if man is not None else {}
+        self.mpath = man.path if man is not None and man.path else "the manifest"
+        self.time_declared = units.get("time")
+        self.time_origin = f"{self.mpath} [units] time" if self.time_declared else ""
+        self.start_ns = utc_to_ns(man.start_utc) if man is not None and man.start_utc else None
+        if angle_unit is not None:
+            self.angle_unit, self.angle_origin = angle_unit, f"angle_unit={angle_unit!r}"
+        elif "angle" in units:
+            self.angle_unit, self.angle_origin = units["angle"], f"{self.mpath} [units] angle = {units['angle']!r}"
+        else:
+            self.angle_unit, self.angle_origin = "deg", "the default"
+        if signal_unit is not None:
+            self.signal_unit, self.signal_origin = signal_unit, f"signal_unit={signal_unit!r}"
+        elif "signal" in units:
+            self.signal_unit, self.signal_origin = units["signal"], f"{self.mpath} [units] signal = {units['signal']!r}"
+        elif man is not None and "signal" in man.apparatus:
+            self.signal_unit = man.apparatus["signal"]
+            self.signal_origin = f"{self.mpath} [apparatus] signal = {man.apparatus['signal']!r}"
+        else:
+            self.signal_unit, self.signal_origin = "fringe", "the default unit, 'fringe'"
+
+    def numbers(self, col, name: str, rows: np.ndarray) -> np.ndarray:
+        """float64 values of a column (NaN where missing); a non-numeric entry is a ScanError."""
+        if is_arrow(col):
+            vals = arrow_numeric(col)
+            if vals is not None:
+                return vals
+            col = col.to_pandas()
+        return _numeric_column(col, name, self.src, rows)
+
+
+class TimeDecoder:
+    """Relative seconds and the epoch from the time column, fed whole or chunk by chunk: the first
+    finite value decides between relative and Unix seconds, the first valid absolute time fixes
+    the epoch (and is checked against the manifest's ``start_utc``) for every later chunk."""
+
+    def __init__(self, plan: Plan):
+        self.plan = plan
+        self.mode = None  # "abs" or "rel", once a finite value has been seen
+        self.epoch = None
+        self._shift = None  # seconds added to relative times (manifest start_utc)
+
+    def decode(self, col, rows: np.ndarray) -> np.ndarray:
+        plan, name = self.plan, self.plan.cols["time"]
+        info = arrow_time_values(col, name, plan.src, rows, plan.time_declared, self.mode) if is_arrow(col) else None
+        if info is None:
+            series = col.to_pandas() if is_arrow(col) else col
+            info = _time_column(series, name, plan.src, rows, plan.time_declared, plan.time_origin, self.mode)
+        if info[0] == "abs":
+            _, ns, ok = info
+            if self.mode is None and ok.any():
+                self.mode = "abs"
+            if self.epoch is None and ok.any():
+                i = int(np.argmax(ok))
+                first = int(ns[i])
+                self.epoch = first // NS_PER_S
+                if plan.start_ns is not None and abs(first - plan.start_ns) > START_TOLERANCE_S * NS_PER_S:
+                    raise ScanError(f"{where(plan.src, int(rows[i]), name)}: the log starts at {ns_to_iso(first)} "
+                                    f"but {plan.mpath} [time] start_utc = {plan.man.start_utc} "
+                                    f"({(first - plan.start_ns) / NS_PER_S:+.6g} s); the manifest contradicts the log")
+            if self.epoch is None:
+                return np.full(ns.size, np.nan)
+            if ok.all() and ns.flags.writeable:  # relative seconds over the nanoseconds: no second array
+                ns -= self.epoch * NS_PER_S
+                t = ns.view(np.float64)
+                np.true_divide(ns, NS_PER_S, out=t)
+                return t
+            t = (np.where(ok, ns, self.epoch * NS_PER_S) - self.epoch * NS_PER_S).astype(float) / NS_PER_S
+            t[~ok] = np.nan
+            return t
+        t = np.asarray(info[1], dtype=float)
+        fin = np.isfinite(t)
+        if self.mode is None and fin.any():
+            self.mode = "rel"
+            first = float(t[int(np.argmax(fin))])
+            if plan.start_ns is not None and abs(first) <= UNIX_THRESHOLD_S:
+                first_abs = plan.start_ns + int(np.floor(first * NS_PER_S))
+                self.epoch = first_abs // NS_PER_S
+                self._shift = (plan.start_ns - self.epoch * NS_PER_S) / NS_PER_S
+        return t + self._shift if self._shift is not None else t
+
+
+class SignalUnitCheck:
+    """Is the signal plausibly in its declared unit?  A fractional-frequency log whose typical
+    |value| (median over the finite values, to 0.07 %: :mod:`nullfit.reading.histogram`) exceeds
+    :data:`FRACTIONAL_MAX` is not Δν/ν; a fringe log whose every |value| is below
+    :data:`FRINGE_MIN` looks like Δν/ν.  Fed whole or chunk by chunk."""
+
+    def __init__(self, plan: Plan):
+        self.plan = plan
+        self.hist = LogHistogram()
+        self.max = 0.0
+
+    def add(self, y: np.ndarray) -> None:
+        if y.size == 0:
+            return
+        finite = np.isfinite(y)
+        if finite.all() and self.plan.signal_unit != "fractional":  # only the largest |value| matters
+            self.max = max(self.max, abs(float(y.min())), abs(float(y.max())))
+            return
+        fin = np.abs(y[finite])
+        if fin.size:
+            self.max = max(self.max, float(fin.max()))
+            if self.plan.signal_unit == "fractional":
+                self.hist.add(fin)
+
+    def check(self) -> None:
+        plan = self.plan
+        src, col, unit, origin = plan.src, plan.cols["signal"], plan.signal_unit, plan.signal_origin
+        if unit == "fractional":
+            med = self.hist.median()
+            if med is not None and med > FRACTIONAL_MAX:
+                raise ScanError(f"{where(src, None, col)}: values of typical size {med:.3g} are not fractional "
+                                f"frequency offsets Δν/ν (declared by {origin}); the unit contradicts the log")
+        if unit == "fringe" and 0 < self.max < FRINGE_MIN:
+            raise ScanError(f"{where(src, None, col)}: every value is below {FRINGE_MIN:g} fringe (declared by "
+                            f"{origin}); they look like a fractional frequency Δν/ν: set signal_unit='fractional'")
+
+
 def frame_fields(get, names, n, rows, src, man, kw, angle_unit, signal_unit, nonfinite) -> dict:
     """The arguments of :func:`~nullfit.reading.validate.check_columns` for a table: ``get(name)``
-    returns the column's Series (shared by CSV, Parquet and DataFrame input)."""
+    returns the column (a pandas Series or a pyarrow array; shared by CSV, Parquet and DataFrame
+    input)."""
     if n == 0:
         raise ScanError(f"{where(src)}: the log has column names but no data rows")
-    cols, aux_names = resolve_columns(names, kw, man, src)
-    units = dict(man.units) if man is not None else {}
-    mpath = man.path if man is not None and man.path else "the manifest"
-
-    # time
-    declared_t = units.get("time")
-    tinfo = _time_column(get(cols["time"]), cols["time"], src, rows, declared_t,
-                         f"{mpath} [units] time" if declared_t else "")
-    start_ns = utc_to_ns(man.start_utc) if man is not None and man.start_utc else None
-    if tinfo[0] == "abs":
-        _, ns, ok = tinfo
-        epoch, t = split_epoch(ns, ok)
-        if start_ns is not None and ok.any():
-            first = int(ns[ok][0])
-            if abs(first - start_ns) > START_TOLERANCE_S * NS_PER_S:
-                i = int(np.flatnonzero(ok)[0])
-                raise ScanError(f"{where(src, int(rows[i]), cols['time'])}: the log starts at {ns_to_iso(first)} but "
-                                f"{mpath} [time] start_utc = {man.start_utc} ({(first - start_ns) / NS_PER_S:+.6g} s); "
-                                "the manifest contradicts the log")
-    else:
-        t = np.asarray(tinfo[1], dtype=float)
-        epoch = None
-        fin = np.flatnonzero(np.isfinite(t))
-        if start_ns is not None and fin.size and abs(t[fin[0]]) <= UNIX_THRESHOLD_S:
-            first_abs = start_ns + int(np.floor(t[fin[0]] * NS_PER_S))
-            epoch = first_abs // NS_PER_S
-            t = t + (start_ns - epoch * NS_PER_S) / NS_PER_S
-
-    # angle and signal
-    if angle_unit is not None:
-        a_unit, a_origin = angle_unit, f"angle_unit={angle_unit!r}"
-    elif "angle" in units:
-        a_unit, a_origin = units["angle"], f"{mpath} [units] angle = {units['angle']!r}"
-    else:
-        a_unit, a_origin = "deg", "the default"
-    angle = _numeric_column(get(cols["angle"]), cols["angle"], src, rows)
-    signal = _numeric_column(get(cols["signal"]), cols["signal"], src, rows)
-    if signal_unit is not None:
-        s_unit, s_origin = signal_unit, f"signal_unit={signal_unit!r}"
-    elif "signal" in units:
-        s_unit, s_origin = units["signal"], f"{mpath} [units] signal = {units['signal']!r}"
-    elif man is not None and "signal" in man.apparatus:
-        s_unit, s_origin = man.apparatus["signal"], f"{mpath} [apparatus] signal = {man.apparatus['signal']!r}"
-    else:
-        s_unit, s_origin = "fringe", "the default unit, 'fringe'"
-    _check_signal_unit(signal, s_unit, s_origin, src, cols["signal"])
-    aux = {name: _numeric_column(get(name), name, src, rows) for name in aux_names}
-
-    return dict(time=t, angle=angle, signal=signal, angle_unit=a_unit, epoch_unix=epoch, signal_unit=s_unit,
-                source=src, rows=rows, columns=cols, aux=aux, nonfinite=nonfinite, angle_unit_origin=a_origin)
-
-
-def _check_signal_unit(y, unit, origin, src, col):
-    fin = np.abs(y[np.isfinite(y)])
-    if fin.size == 0:
-        return
-    if unit == "fractional" and float(np.median(fin)) > FRACTIONAL_MAX:
-        raise ScanError(f"{where(src, None, col)}: values of typical size {float(np.median(fin)):.3g} are not "
-                        f"fractional frequency offsets Δν/ν (declared by {origin}); the unit contradicts the log")
-    if unit == "fringe" and float(fin.max()) < FRINGE_MIN and float(fin.max()) > 0:
-        raise ScanError(f"{where(src, None, col)}: every value is below {FRINGE_MIN:g} fringe (declared by {origin}); "
-                        "they look like a fractional frequency Δν/ν: set signal_unit='fractional'")
+    plan = Plan(names, src, man, kw, angle_unit, signal_unit)
+    cols = plan.cols
+    decoder = TimeDecoder(plan)
+    t = decoder.decode(get(cols["time"]), rows)
+    angle = plan.numbers(get(cols["angle"]), cols["angle"], rows)
+    signal = plan.numbers(get(cols["signal"]), cols["signal"], rows)
+    unit_check = SignalUnitCheck(plan)
+    unit_check.add(signal)
+    unit_check.check()
+    aux = {name: plan.numbers(get(name), name, rows) for name in plan.aux}
+    return dict(time=t, angle=angle, signal=signal, angle_unit=plan.angle_unit, epoch_unix=decoder.epoch,
+                signal_unit=plan.signal_unit, source=src, rows=rows, columns=cols, aux=aux, nonfinite=nonfinite,
+                angle_unit_origin=plan.angle_origin)

@@ -38,7 +38,8 @@ import re
 from pathlib import Path
 
 from ..core.errors import ScanError
-from .columns import check_options, one_line, resolve_columns, show
+from .columns import check_options, one_line, resolve_columns
+from .csv_arrow import csv_header, decode_text, read_csv_arrow, read_header
 from .manifest import load_manifest
 from .scan import Scan
 
@@ -46,55 +47,6 @@ PARQUET_SUFFIXES = (".parquet", ".pq", ".parq")
 
 
 # ---------------------------------------------------------------------------------- files
-def _decode(raw: bytes, src: str) -> str:
-    if raw.startswith((b"\xff\xfe", b"\xfe\xff")):
-        raise ScanError(f"{src}, line 1: the file is UTF-16 encoded (byte-order mark 0x{raw[0]:02x}{raw[1]:02x}); "
-                        "save the log as UTF-8")
-    try:
-        text = raw.decode("utf-8-sig")
-    except UnicodeDecodeError as err:
-        off = err.start
-        line = raw[:off].count(b"\n") + 1
-        col = off - (raw.rfind(b"\n", 0, off) + 1) + 1
-        row = f" (data row {line - 1})" if line > 1 else " (the header)"
-        raise ScanError(f"{src}, line {line}{row}: byte 0x{raw[off]:02x} at offset {off} (character {col} of the "
-                        "line) is not valid UTF-8; save the log as UTF-8") from None
-    nul = text.find("\x00")
-    if nul >= 0:
-        line = text.count("\n", 0, nul) + 1
-        raise ScanError(f"{src}, line {line}: the file contains NUL characters; it is binary, not a CSV text log")
-    return text
-
-
-def _csv_header(text: str, src: str) -> list[str]:
-    first = text.split("\n", 1)[0].rstrip("\r")
-    if not first.strip():
-        raise ScanError(f"{src}, line 1: the first line is empty; the header (column names) must be on line 1")
-    try:
-        header = [h.strip() for h in next(csv.reader([first]))]
-    except (csv.Error, StopIteration) as err:
-        raise ScanError(f"{src}, line 1: cannot read the header ({one_line(err)})") from None
-    if len(header) == 1:
-        for delim, label in ((";", "semicolons"), ("\t", "tabs"), ("|", "'|' characters")):
-            if delim in first:
-                raise ScanError(f"{src}, line 1: the header {show(first, 60)} is separated by {label}, not commas; "
-                                "nullfit reads comma-separated values (convert the file; mind decimal commas)")
-        if len(first.split()) > 1:
-            raise ScanError(f"{src}, line 1: the header {show(first, 60)} is separated by spaces, not commas; "
-                            "nullfit reads comma-separated values")
-    numeric = 0
-    for h in header:
-        try:
-            float(h)
-            numeric += 1
-        except ValueError:
-            pass
-    if numeric == len(header):
-        raise ScanError(f"{src}, line 1: the first line holds numbers ({show(first, 40)}), not column names; "
-                        "the log needs a header line such as 'time_s,angle_deg,fringe'")
-    return header
-
-
 def _read_csv(raw: bytes, src: str, time_column):
     """``(header, frame)`` of a CSV log; ``time_column(header)`` names the time column, which is read
     as text (exact Unix times, ISO-8601 timestamps); the others are parsed as numbers where they can be."""
@@ -102,10 +54,10 @@ def _read_csv(raw: bytes, src: str, time_column):
 
     if not raw.strip():
         raise ScanError(f"{src}: the file is empty")
-    text = _decode(raw, src)
+    text = decode_text(raw, src)
     if not text.strip():
         raise ScanError(f"{src}: the file is empty")
-    header = _csv_header(text, src)
+    header = csv_header(text, src)
     text = text.rstrip()  # trailing blank lines are not rows (earlier ones are, so numbering holds)
     ncol = len(header)
     if "\n" not in text:
@@ -127,20 +79,33 @@ def _read_csv(raw: bytes, src: str, time_column):
     return header, df
 
 
-def _read_parquet(raw: bytes, src: str):
+def _parquet_names(p: Path, src: str) -> list[str]:
     import pyarrow as pa
     import pyarrow.parquet as pq
 
     try:
-        table = pq.read_table(pa.BufferReader(raw))
-        df = table.to_pandas(ignore_metadata=True)
+        return [str(n) for n in pq.read_schema(p).names]
     except (pa.ArrowException, OSError, ValueError, TypeError, OverflowError) as err:
         raise ScanError(f"{src}: not a readable Parquet file ({one_line(err)[:200]})") from None
-    return [str(c) for c in df.columns], df
+
+
+def _parquet_column(p: Path, src: str):
+    """``get(name)``: one column of a Parquet log as a pyarrow ChunkedArray, read when asked for
+    (the columns are converted one at a time, so only one is held in Arrow's memory at once)."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    def get(name):
+        try:
+            return pq.ParquetFile(p).read(columns=[name], use_threads=True).column(0)
+        except (pa.ArrowException, OSError, ValueError, TypeError, OverflowError, KeyError) as err:
+            raise ScanError(f"{src}: not a readable Parquet file ({one_line(err)[:200]})") from None
+
+    return get
 
 
 def read_scan(path, *, time=None, angle=None, signal=None, angle_unit=None, manifest=None,
-              nonfinite: str = "drop", signal_unit=None) -> Scan:
+              nonfinite: str = "drop", signal_unit=None, aux=None) -> Scan:
     """Read a scan log (CSV or Parquet) and its manifest into a validated `Scan`.
 
     Parameters
@@ -163,6 +128,11 @@ def read_scan(path, *, time=None, angle=None, signal=None, angle_unit=None, mani
         (default), or refused with a `ScanError`.
     signal_unit : {"fringe", "fractional"}, optional
         Default: the manifest's ``[units] signal`` or ``[apparatus] signal``, else ``"fringe"``.
+    aux : str or sequence of str, optional
+        Auxiliary columns (tilt, temperature, ...) to keep in ``Scan.aux``; they replace the
+        manifest's ``[columns] aux`` list (``aux=[]`` keeps none).  A missing column is a
+        `ScanError`; a row with a missing or non-finite aux value is dropped (and counted under
+        its own reason naming the column) or refused, as ``nonfinite`` says.
 
     Returns
     -------
@@ -183,7 +153,7 @@ def read_scan(path, *, time=None, angle=None, signal=None, angle_unit=None, mani
     if hasattr(path, "iloc") and hasattr(path, "columns"):  # a pandas DataFrame
         return Scan.from_frame(path, time=time, angle=angle, signal=signal, angle_unit=angle_unit,
                                manifest=None if manifest is None else manifest, nonfinite=nonfinite,
-                               signal_unit=signal_unit)
+                               signal_unit=signal_unit, aux=aux)
     check_options(angle_unit, signal_unit, nonfinite)
     p = Path(path)
     src = str(path)
@@ -195,22 +165,55 @@ def read_scan(path, *, time=None, angle=None, signal=None, angle_unit=None, mani
         man = load_manifest(manifest, p)
     except ScanError as err:  # say which log the manifest belongs to (it may have been found silently)
         raise ScanError(f"{err} (manifest of {src})") from None
+    kw = {"time": time, "angle": angle, "signal": signal, "aux": aux}
     try:
-        raw = p.read_bytes()
+        with open(p, "rb") as f:
+            magic = f.read(4)
     except OSError as err:
         raise ScanError(f"{src}: cannot read the file ({err.strerror or err})") from None
-    if raw[:4] == b"PAR1" or p.suffix.lower() in PARQUET_SUFFIXES:
-        if raw[:4] != b"PAR1":
-            if not raw.strip():
+    if magic == b"PAR1" or p.suffix.lower() in PARQUET_SUFFIXES:
+        if magic != b"PAR1":
+            if not _read_bytes(p, src).strip():
                 raise ScanError(f"{src}: the file is empty")
             raise ScanError(f"{src}: not a Parquet file (no 'PAR1' magic bytes at the start)")
-        names, df = _read_parquet(raw, src)
-    else:
-        kw = {"time": time, "angle": angle, "signal": signal}
-        names, df = _read_csv(raw, src, lambda header: resolve_columns(header, kw, man, src)[0]["time"])
+        names = _parquet_names(p, src)
+        n = _parquet_rows(p, src)
+        if n == 0:
+            raise ScanError(f"{src}: the log has column names but no data rows")
+        return Scan.from_table(_parquet_column(p, src), names, n, src, man, kw, angle_unit, signal_unit, nonfinite,
+                               owned=True)
+    data = None
+    header = read_header(p, src)
+    if header is not None:
+        try:
+            chosen, aux_names = resolve_columns(header, kw, man, src)
+        except ScanError:
+            chosen = None  # the careful route reports it, after checking the whole file
+        if chosen is not None:
+            data = read_csv_arrow(p, header, chosen["time"], [*chosen.values(), *aux_names])
+    if data is not None:
+        n = len(data[chosen["time"]])
+        return Scan.from_table(data.pop, header, n, src, man, kw, angle_unit, signal_unit, nonfinite, owned=True)
+    names, df = _read_csv(_read_bytes(p, src), src, lambda header: resolve_columns(header, kw, man, src)[0]["time"])
 
     def get(name):
         return df.iloc[:, names.index(name)]
 
-    return Scan.from_table(get, names, len(df), src, man, {"time": time, "angle": angle, "signal": signal},
-                           angle_unit, signal_unit, nonfinite)
+    return Scan.from_table(get, names, len(df), src, man, kw, angle_unit, signal_unit, nonfinite, owned=True)
+
+
+def _read_bytes(p: Path, src: str) -> bytes:
+    try:
+        return p.read_bytes()
+    except OSError as err:
+        raise ScanError(f"{src}: cannot read the file ({err.strerror or err})") from None
+
+
+def _parquet_rows(p: Path, src: str) -> int:
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    try:
+        return int(pq.read_metadata(p).num_rows)
+    except (pa.ArrowException, OSError, ValueError, TypeError, OverflowError) as err:
+        raise ScanError(f"{src}: not a readable Parquet file ({one_line(err)[:200]})") from None

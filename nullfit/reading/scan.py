@@ -16,7 +16,13 @@ A `Scan` is what every later stage reads.  It holds
 * ``rows`` — the source row numbers of the kept rows, counted from 1 over the *data* rows
   (the header line of a CSV file is not counted, so data row ``r`` is line ``r + 1`` of the
   file), so that any message can point back to the file;
-* ``dropped`` — how many rows were dropped and why (nothing is dropped silently).
+* ``dropped`` — how many rows were dropped while reading, and why (nothing is dropped
+  silently); rows of *partial* turns are kept in the scan (the fit leaves them out by default):
+  ``partial_turn_rows`` counts them;
+* ``n_reversals`` and ``reversal_rows`` — the changes of rotation direction and the source row of
+  the first reading after each;
+* ``gaps`` — the gaps in time (:class:`nullfit.reading.events.Gap`: rows on either side, duration,
+  turns the table would have made meanwhile).
 
 The arrays are read-only.
 """
@@ -31,16 +37,29 @@ import numpy as np
 
 from ..core.render import Described, Summary
 from .columns import check_options, frame_fields
+from .events import Gap
 from .manifest import Manifest, load_manifest
-from .turn_numbering import MARK_BIN_DEG, MARK_TOL_DEG
+from .marks import MarkBins
 from .validate import check_columns
+
+#: At most this many gaps and direction changes are listed one by one in a summary.
+LIST_AT_MOST = 10
 
 
 # ---------------------------------------------------------------------------------- Scan
 def _readonly(arr: np.ndarray) -> np.ndarray:
+    """A read-only array: an array that is already read-only is kept (the validation freezes the
+    arrays it made itself, so a file read is not copied again); anything else is copied."""
+    if isinstance(arr, np.ndarray) and not arr.flags.writeable:
+        return arr
     arr = np.array(arr, copy=True)
     arr.setflags(write=False)
     return arr
+
+
+def _listed(values, limit: int = LIST_AT_MOST) -> str:
+    shown = ", ".join(str(v) for v in values[:limit])
+    return shown + (f", ... ({len(values)} in all)" if len(values) > limit else "")
 
 
 @dataclass(frozen=True, eq=False)
@@ -62,6 +81,8 @@ class Scan(Described):
     aux: Mapping[str, np.ndarray] = field(default_factory=dict)
     meta: Manifest = field(default_factory=Manifest)
     n_reversals: int = 0
+    reversal_rows: tuple[int, ...] = ()
+    gaps: tuple[Gap, ...] = ()
 
     def __post_init__(self):
         for name in ("time", "angle", "signal", "turn", "turn_complete", "turn_sense", "rows"):
@@ -87,6 +108,7 @@ class Scan(Described):
         dropped: Mapping[str, int] | None = None,
         nonfinite: str = "drop",
         angle_unit_origin: str | None = None,
+        owned: bool = False,
     ) -> "Scan":
         """Validate plain arrays and build a `Scan`.
 
@@ -107,8 +129,14 @@ class Scan(Described):
             Source row numbers (1-based data rows) used in messages; default 1..n.
         columns : mapping, optional
             Names of the ``time``, ``angle`` and ``signal`` columns in the source, for messages.
+        aux : mapping, optional
+            Auxiliary columns (name → values), kept in ``Scan.aux``; a row with a non-finite aux
+            value is dropped and counted under its own reason naming the column.
         nonfinite : {"drop", "raise"}
             NaN/inf readings are dropped and counted (with a `ScanWarning`), or refused.
+        owned : bool
+            The arrays are the caller's own temporaries (a file reader's): the scan may keep them
+            without a copy.  Leave False for arrays you still use.
 
         Raises
         ------
@@ -118,16 +146,21 @@ class Scan(Described):
         fields = check_columns(time, angle, signal, angle_unit=angle_unit, epoch_unix=epoch_unix,
                                signal_unit=signal_unit, source=source, rows=rows, columns=columns, aux=aux,
                                dropped=dropped, nonfinite=nonfinite,
-                               angle_unit_origin=angle_unit_origin)
+                               angle_unit_origin=angle_unit_origin, owned=owned)
+        for name in ("time", "angle", "signal", "turn", "turn_complete", "turn_sense", "rows"):
+            fields[name].setflags(write=False)
+        for v in fields["aux"].values():
+            v.setflags(write=False)
         return cls(**fields, meta=meta if meta is not None else Manifest())
 
     @classmethod
     def from_frame(cls, df, *, time=None, angle=None, signal=None, angle_unit=None, manifest=None,
-                   source: str = "<frame>", nonfinite: str = "drop", signal_unit=None) -> "Scan":
+                   source: str = "<frame>", nonfinite: str = "drop", signal_unit=None, aux=None) -> "Scan":
         """Build a `Scan` from a pandas DataFrame (columns chosen as in
-        :func:`nullfit.read_scan`; ``manifest`` may be a path or a `Manifest`, there is no
-        automatic look-up).  Row ``r`` in messages is the ``r``-th row of the frame, counted
-        from 1.  The frame is not modified."""
+        :func:`nullfit.read_scan`, auxiliary columns by ``aux`` — which wins over the manifest's
+        ``[columns] aux``; ``manifest`` may be a path or a `Manifest`, there is no automatic
+        look-up).  Row ``r`` in messages is the ``r``-th row of the frame, counted from 1.  The
+        frame is not modified."""
         import pandas as pd
 
         if not isinstance(df, pd.DataFrame):
@@ -140,16 +173,19 @@ class Scan(Described):
             return df.iloc[:, names.index(name)].reset_index(drop=True)
 
         return cls.from_table(get, names, len(df), str(source), man,
-                              {"time": time, "angle": angle, "signal": signal}, angle_unit, signal_unit, nonfinite)
+                              {"time": time, "angle": angle, "signal": signal, "aux": aux}, angle_unit, signal_unit,
+                              nonfinite)
 
     @classmethod
-    def from_table(cls, get, names, n, source, manifest, columns, angle_unit, signal_unit, nonfinite) -> "Scan":
-        """Build a `Scan` from any table: ``get(name)`` returns a column as a pandas Series,
-        ``names`` lists the columns, ``n`` is the number of rows, ``columns`` maps the roles
-        time/angle/signal to the names asked for (or None).  Used by the file readers."""
+    def from_table(cls, get, names, n, source, manifest, columns, angle_unit, signal_unit, nonfinite,
+                   owned: bool = False) -> "Scan":
+        """Build a `Scan` from any table: ``get(name)`` returns a column (a pandas Series or a
+        pyarrow array), ``names`` lists the columns, ``n`` is the number of rows, ``columns`` maps
+        the roles time/angle/signal (and ``aux``, a list) to the names asked for (or None).
+        Used by the file readers (``owned=True``: the columns are theirs to give away)."""
         rows = np.arange(1, n + 1, dtype=np.int64)
         fields = frame_fields(get, names, n, rows, source, manifest, columns, angle_unit, signal_unit, nonfinite)
-        return cls.from_arrays(**fields, meta=manifest if manifest is not None else Manifest())
+        return cls.from_arrays(**fields, meta=manifest if manifest is not None else Manifest(), owned=owned)
 
     # ------------------------------------------------------------------ facts
     @property
@@ -166,7 +202,14 @@ class Scan(Described):
 
     @property
     def dropped_rows(self) -> int:
+        """Rows dropped while reading the log (missing or non-finite values)."""
         return int(sum(c for _, c in self.dropped))
+
+    @property
+    def partial_turn_rows(self) -> int:
+        """Rows kept in the scan that belong to partial turns (left out of per-turn statistics by
+        the fit by default; not counted in :attr:`dropped_rows`)."""
+        return int(self.n_samples - np.count_nonzero(self.turn_complete[self.turn]))
 
     @property
     def angle_deg(self) -> np.ndarray:
@@ -180,28 +223,11 @@ class Scan(Described):
     def marks(self) -> int | None:
         """Number of distinct azimuths per turn when the table is read at discrete marks
         (at most 64 clusters of readings, each narrower than 1°, modulo 360°; encoder jitter at a
-        mark is tolerated), else ``None`` (continuous sampling).
-
-        Every reading counts (a strided subsample can alias with the readings per turn).  The
-        azimuths are first reduced to occupied bins of 1e-4° with one ``bincount`` — O(n), no
-        sort of the full log — and the clusters are found on those bins."""
-        if self.angle.size == 0:
-            return None
-        nbins = int(round(360.0 / MARK_BIN_DEG))
-        idx = (np.mod(np.rad2deg(self.angle), 360.0) / MARK_BIN_DEG).astype(np.int64) % nbins
-        az = np.flatnonzero(np.bincount(idx, minlength=nbins)) * MARK_BIN_DEG  # sorted, occupied
-        breaks = np.flatnonzero(np.diff(az) > MARK_TOL_DEG)
-        lo = np.concatenate(([0], breaks + 1))
-        hi = np.append(breaks, az.size - 1)
-        width = az[hi] - az[lo]
-        count = lo.size
-        if count > 1 and az[0] + 360.0 - az[-1] <= MARK_TOL_DEG:  # the cluster around 0°/360°
-            width[0] = width[0] + width[-1] + (az[0] + 360.0 - az[-1])
-            width = width[:-1]
-            count -= 1
-        if count > 64 or float(width.max()) > 1.0:
-            return None
-        return int(count)
+        mark is tolerated), else ``None`` (continuous sampling).  Every reading counts (a strided
+        subsample can alias with the readings per turn); see :mod:`nullfit.reading.marks`."""
+        bins = MarkBins()
+        bins.feed(self.angle)
+        return bins.count()
 
     @property
     def run_id(self) -> str:
@@ -233,15 +259,26 @@ class Scan(Described):
             ("turns (partial)", self.n_turns - self.n_complete_turns, ""),
             ("duration", self.duration_s, "s"),
             ("signal unit", self.unit, ""),
-            ("dropped rows", self.dropped_rows, ""),
+            ("rows dropped while reading", self.dropped_rows, ""),
+            ("rows in partial turns", self.partial_turn_rows, ""),
+            ("direction changes", self.n_reversals, ""),
+            ("gaps in time", len(self.gaps), ""),
         ]
         if self.marks:
             rows.append(("marks per turn", self.marks, ""))
         if self.epoch_unix is not None:
             rows.append(("epoch (UTC)", self.epoch_iso, ""))
-        notes = tuple(f"dropped {c} row(s): {why}" for why, c in self.dropped)
+        notes = tuple(f"dropped {c} row(s) while reading: {why}" for why, c in self.dropped)
         if self.n_reversals:
-            notes += (f"the table changed direction {self.n_reversals} time(s)",)
+            notes += (f"the table changed direction {self.n_reversals} time(s); first reading after each: "
+                      f"row(s) {_listed(self.reversal_rows)}",)
+        for g in self.gaps[:LIST_AT_MOST]:
+            notes += (g.describe(),)
+        if len(self.gaps) > LIST_AT_MOST:
+            notes += (f"... and {len(self.gaps) - LIST_AT_MOST} more gap(s) (see to_dict()['gaps'])",)
+        if self.partial_turn_rows:
+            notes += (f"{self.partial_turn_rows} row(s) lie in partial turns (kept in the scan; a fit leaves them "
+                      "out unless asked to use them)",)
         if self.aux:
             notes += ("auxiliary columns: " + ", ".join(self.aux),)
         return Summary(f"Scan {self.run_id}", tuple(rows), notes)
@@ -255,6 +292,8 @@ class Scan(Described):
             "n_turns": self.n_turns,
             "n_complete_turns": self.n_complete_turns,
             "n_reversals": int(self.n_reversals),
+            "reversal_rows": [int(r) for r in self.reversal_rows],
+            "gaps": [g.to_dict() for g in self.gaps],
             "marks": self.marks,
             "duration_s": self.duration_s,
             "epoch_unix": self.epoch_unix,
@@ -262,6 +301,7 @@ class Scan(Described):
             "unit": self.unit,
             "dropped_rows": self.dropped_rows,
             "dropped": {why: int(c) for why, c in self.dropped},
+            "partial_turn_rows": self.partial_turn_rows,
             "aux_columns": list(self.aux),
         }
 

@@ -19,6 +19,9 @@ NS_PER_S = 1_000_000_000
 UNIX_THRESHOLD_S = 1e8
 #: The largest Unix time that fits int64 nanoseconds (2262-04-11), rounded down.
 UNIX_MAX_S = 9.2e9
+_BLOCK = 1 << 16
+_FRAC_BITS = 22  # fractional bits of a float64 in [2**30, 2**31)
+_BINADE_FROM = 1 << 16  # inputs at least this long look fractions up (see float_seconds_to_ns)
 
 
 def decimal_seconds_to_ns(tokens) -> tuple[np.ndarray, np.ndarray]:
@@ -60,28 +63,107 @@ def decimal_seconds_to_ns(tokens) -> tuple[np.ndarray, np.ndarray]:
     return ns, ok
 
 
+def _fraction_ns(center: np.ndarray, half: np.ndarray) -> np.ndarray:
+    """The shortest decimal fraction (ns, as floats) within ``half`` of ``center`` (both in ns)."""
+    frac = np.rint(center)  # 9 digits: the fallback (an ulp below 1 ns never occurs above 1e8 s)
+    todo = None
+    for digits in range(3):  # few digits: cheap when most values are round
+        unit = 10.0 ** (9 - digits)
+        c = center if todo is None else center[todo]
+        h = half if todo is None else half[todo]
+        cand = np.rint(c / unit)
+        cand *= unit
+        hit = np.abs(cand - c) < h
+        if todo is None:
+            frac[hit] = cand[hit]
+            todo = np.flatnonzero(~hit)
+        else:
+            frac[todo[hit]] = cand[hit]
+            todo = todo[~hit]
+        if todo.size == 0:
+            return frac
+    c, h = center[todo], half[todo]
+    lo = np.full(todo.size, 3)
+    hi = np.full(todo.size, 9)  # the answer lies in [lo, hi]; 9 digits always "hit" (fallback)
+    while True:
+        open_ = lo < hi
+        if not open_.any():
+            break
+        mid = (lo + hi) // 2
+        unit = 10.0 ** (9 - mid)
+        hit = np.abs(np.rint(c / unit) * unit - c) < h
+        hi = np.where(open_ & hit, mid, hi)
+        lo = np.where(open_ & ~hit, mid + 1, lo)
+    unit = 10.0 ** (9 - lo)
+    cand = np.rint(c / unit) * unit
+    frac[todo] = np.where(lo < 9, cand, np.rint(c))
+    return frac
+
+
 def float_seconds_to_ns(values) -> tuple[np.ndarray, np.ndarray]:
     """Convert float seconds to int64 nanoseconds, reading each float as its shortest decimal
     representation (so ``1800000000.1234567`` gives ``...123456700`` ns, as its text would).
 
     Vectorised: the whole seconds are exact; for the fraction, the decimal with the fewest digits
     (0 to 9) that lies strictly within half a unit in the last place of the float is chosen, which
-    is what the shortest round-trip representation (``repr``) gives.  Returns ``(ns, ok)`` as
+    is what the shortest round-trip representation (``repr``) gives.  A decimal of ``d`` digits
+    within half an ulp is also one of ``d + 1`` digits, so the fewest digits are found by trying
+    0, 1 and 2 digits on the values still open (regular sampling ends here) and a binary search
+    over 3..9 digits for the rest.  Within one binade the answer depends on the fractional bits
+    alone: for long inputs of the years 2004–2038 (the binade [2**30, 2**31) s, 22 fractional
+    bits) it is worked out once per distinct fraction and looked up.  Returns ``(ns, ok)`` as
     :func:`decimal_seconds_to_ns`."""
     v = np.asarray(values, dtype=float).ravel()
+    if v.size >= _BINADE_FROM and 2.0**30 <= float(v.min()) and float(v.max()) < 2.0**31:
+        ns = _binade_to_ns(v)
+        if ns is not None:
+            return ns, np.ones(v.size, bool)
+    if v.size > _BLOCK:  # in blocks: the temporaries stay in cache
+        ns, ok = np.empty(v.size, np.int64), np.empty(v.size, bool)
+        for i in range(0, v.size, _BLOCK):
+            ns[i: i + _BLOCK], ok[i: i + _BLOCK] = _seconds_to_ns(v[i: i + _BLOCK])
+        return ns, ok
+    return _seconds_to_ns(v)
+
+
+def _binade_to_ns(v: np.ndarray) -> np.ndarray | None:
+    """:func:`float_seconds_to_ns` for floats all in [2**30, 2**31): the fraction of each distinct
+    22-bit fractional part is found once (by :func:`_fraction_ns`) and looked up; None when most
+    fractions are distinct (nothing to share)."""
+    frac_bits = np.empty(v.size, np.int32)
+    for i in range(0, v.size, _BLOCK):
+        w = v[i: i + _BLOCK]
+        f = w - np.floor(w)
+        f *= 2.0**_FRAC_BITS  # exact: the 22 fractional bits as an integer
+        frac_bits[i: i + _BLOCK] = f
+    seen = np.zeros(1 << _FRAC_BITS, bool)
+    seen[frac_bits] = True
+    keys = np.flatnonzero(seen)
+    if 2 * keys.size > v.size:
+        return None  # mostly distinct fractions: the direct route is quicker
+    table = np.zeros(1 << _FRAC_BITS, np.int32)  # fractions < 1e9 ns
+    # the exact fraction in ns: f·1e9 < 2**53 and the division by a power of two is exact
+    table[keys] = _fraction_ns(keys * (NS_PER_S / 2.0**_FRAC_BITS),
+                               np.full(keys.size, NS_PER_S * 2.0 ** -(_FRAC_BITS + 1)))
+    ns = np.empty(v.size, np.int64)
+    for i in range(0, v.size, _BLOCK):
+        out = ns[i: i + _BLOCK]
+        out[:] = np.floor(v[i: i + _BLOCK])
+        out *= NS_PER_S
+        out += table[frac_bits[i: i + _BLOCK]]
+    return ns
+
+
+def _seconds_to_ns(v: np.ndarray):
     ok = np.isfinite(v) & (np.abs(v) < UNIX_MAX_S)
     w = np.where(ok, v, 0.0)
     sec = np.floor(w)
-    center = (w - sec) * NS_PER_S  # the exact fraction, in ns (relative error ~1e-16)
-    half = np.spacing(np.abs(w)) / 2 * NS_PER_S  # half an ulp, in ns
-    frac = np.rint(center)
-    done = np.zeros(v.size, bool)
-    for digits in range(10):
-        unit = 10.0 ** (9 - digits)
-        cand = np.rint(center / unit) * unit
-        hit = ~done & (np.abs(cand - center) < half)
-        frac[hit] = cand[hit]
-        done |= hit
+    center = w - sec
+    center *= NS_PER_S  # the exact fraction, in ns (relative error ~1e-16)
+    # half an ulp, in ns: 2**(exponent - 53) built from the exponent bits (np.spacing is slow)
+    half = (((w.view(np.int64) >> 52) & 0x7FF) - 53 << 52).view(np.float64)
+    half *= NS_PER_S
+    frac = _fraction_ns(center, half)
     ns = sec.astype(np.int64) * NS_PER_S + frac.astype(np.int64)
     return np.where(ok, ns, 0), ok
 

@@ -1,56 +1,66 @@
 """Turn numbering: unwrap the turntable angle and give every reading a turn number.
 
 Angles may be logged modulo 360° (either rotation sense), continuously, or at discrete marks
-(e.g. 16 marks per turn with the start mark read again at the end of the turn).
+(e.g. 16 marks per turn with the start mark read again at the end of the turn).  Every step below
+can be fed a log chunk by chunk with its state carried across chunk boundaries; the result does
+not depend on the chunk sizes (a log read whole is one chunk).  Whole-log statistics come first
+(:mod:`nullfit.reading.unwrap`), so a chunked reader makes three passes over the angles.
 
-1. *Unwrap.*  When all angles lie within one turn (range ≤ 360° plus the hysteresis) the log is
-   taken as modulo 360° and a step larger than half a turn is a wrap; a wider range means the
-   log is already continuous and is left alone.  With the times of the readings, a gap in a
-   modulo-360° log during which the table kept turning at its steady rate for more than half a
-   turn is bridged with the whole turns the rate predicts (the turns inside the gap are then
-   missing, and the turns on either side partial).
+1. *Unwrap* (:class:`~nullfit.reading.unwrap.Unwrapper`).  When all angles lie within one turn
+   (range ≤ 360° plus the hysteresis) the log is taken as modulo 360° and a step larger than half
+   a turn is a wrap; a wider range means the log is already continuous.  With the times of the
+   readings, a gap in a modulo-360° log during which the table kept turning at its steady rate
+   for more than half a turn is bridged with the whole turns the rate predicts.
 2. *Direction, with hysteresis.*  The log is split into monotonic *segments*.  A change of
    rotation direction is declared only when the angle retreats from its running extreme by more
    than ``hysteresis_deg`` (default :data:`REVERSAL_HYSTERESIS_DEG` = 1°), so an encoder that
    jitters by ±0.01° while the table pauses at a mark is not a reversal.  The segment ends at
-   the extreme (together with the pause around it); the next one starts in the other sense.
+   the extreme (together with the pause around it); the next one starts in the other sense.  The
+   sense of the first segment is that of the first excursion larger than the hysteresis.
 3. *Stops.*  Inside a segment, consecutive readings closer than a tolerance (0.1°, or a quarter
    of the typical step if that is smaller) form one *stop* (the readings taken while the table
    paused at a mark, or a single reading for continuous sampling).
 4. *Turns.*  A turn runs from one crossing of the reference mark (θ ≡ 0) to the next in the
    sense of rotation.  A stop that lies on the reference mark opens the next turn, except that
    it *closes* the turn it ends when it is the last stop of the segment, and that when it holds
-   more readings than a typical stop, the surplus (the first readings) closes the ending turn:
+   more readings than a typical stop (the median length of the runs of readings closer than the
+   tolerance, over the whole log), the surplus (the first readings) closes the ending turn:
    this is the "start mark read again" protocol — a drift reference, not an extra azimuth.
-5. *Complete or partial.*  A turn is complete when it has at least three readings and either
-   the table entered it from the previous turn and left it into the next one, or its readings
-   span the circle (span plus one typical step reaches 360°; after a reversal the turning point
-   counts as the start of the new segment's first turn).  The first and last turns of a log that
-   starts or stops mid-turn, and turns cut by a reversal, are *partial*: flagged, counted, and
-   left out of per-turn statistics by the fit.
-"""
+5. *Complete or partial.*  A turn is complete when it has at least three readings and both of
+   its ends are covered.  An end is covered when the table crossed it within the log (it entered
+   the turn from the previous turn, or left it into the next one, in the same segment), or when
+   the arc between the end and the nearest reading is at most
+   :data:`~nullfit.reading.turn_counter.EDGE_STEPS` (1.1) times the largest
+   step between consecutive readings inside the turn (plus the stop tolerance); after a reversal
+   the turning point counts as the start of the new segment's first turn.  The step is the turn's
+   own, so a turn is not declared partial because the table turned faster or slower in it than
+   elsewhere in the log (a turn with a hole inside is judged leniently: the hole is its largest
+   step).
+   The first and last turns of a log that starts or stops mid-turn, turns cut by a gap and turns
+   cut by a reversal are *partial*: flagged, counted, and left out of per-turn statistics by the
+   fit.
 
+Steps 2–5 run in :class:`~nullfit.reading.turn_counter.TurnCounter`.  While a log is fed in
+chunks, the readings from the start of the stop that holds the current segment's extreme onwards
+stay pending (a later reversal could still end the segment there); they are numbered with the
+next chunk, so memory holds at most a pause's worth of extra readings.
+"""
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
-
-TWO_PI = 2.0 * math.pi
+from .turn_counter import EDGE_STEPS, TurnCounter, TurnInfo  # noqa: F401 (re-exported)
+from .unwrap import MARK_BIN_DEG, MARK_TOL_DEG, TWO_PI, StepStats, Unwrapper  # noqa: F401 (re-exported)
 
 #: A change of rotation direction needs the angle to retreat from its running extreme by more than
 #: this many degrees.  Engineering choice: two orders of magnitude above the ±0.01° jitter of a
 #: common encoder at rest and an order of magnitude below any practical mark spacing.
 REVERSAL_HYSTERESIS_DEG = 1.0
-
-#: Readings closer than this many degrees (or a quarter of the typical step, if smaller) belong to
-#: the same stop / lie on the same mark.
-MARK_TOL_DEG = 0.1
-#: Bin width (degrees) used to reduce azimuths before finding mark clusters.
-MARK_BIN_DEG = 1e-4
+_RUN_CAP = 4096
 
 
 @dataclass(frozen=True)
@@ -62,122 +72,88 @@ class Turns:
     complete: np.ndarray  # bool per turn
     sense: np.ndarray  # +1 / -1 per turn (rotation sense)
     n_reversals: int
+    reversal_index: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))  # first reading after each
 
 
-# ---------------------------------------------------------------------------------- turns
-def _first_index(test, lo: int, n: int, window: int = 32) -> int | None:
-    """Smallest ``i >= lo`` where ``test(lo, hi)[i - lo]`` is true, or None.
+# ---------------------------------------------------------------------------------- second pass
+@dataclass(frozen=True)
+class Look:
+    """What :class:`SecondLook` learned: the typical stop length and the first segment's sense."""
 
-    ``test`` evaluates a cumulative criterion on rows ``lo..hi-1``; the window doubles until a hit,
-    so finding a hit at distance ``d`` costs O(d), and a whole log O(n) however many segments."""
-    while True:
-        hi = min(n, lo + window)
-        hits = np.flatnonzero(test(lo, hi))
-        if hits.size:
-            return lo + int(hits[0])
-        if hi >= n:
-            return None
-        window *= 2
+    r_typ: int
+    sense0: int
 
 
-def _segments(phi: np.ndarray, hyst: float, tol: float) -> list[tuple[int, int, int]]:
-    """Split unwrapped angles into monotonic segments ``(lo, hi, sense)`` with hysteresis.
+class SecondLook:
+    """Second pass over the unwrapped angles: the typical number of readings per stop (median
+    length of the runs of consecutive readings closer than the stop tolerance) and the sense of
+    the first excursion larger than the hysteresis."""
 
-    Each segment is followed reading by reading for a short stretch (cheap when reversals are
-    frequent) and then with vectorised doubling windows (cheap when they are rare)."""
-    n = phi.size
+    def __init__(self, tol: float, hysteresis_rad: float):
+        self.tol = tol
+        self.hyst = hysteresis_rad
+        self._prev = None
+        self._run = 0
+        self._counts = np.zeros(_RUN_CAP + 1, np.int64)
+        self._sense: int | None = None
+        self._cmax = -math.inf
+        self._cmin = math.inf
 
-    def excursion(lo, hi):
-        v = phi[lo:hi]
-        return (np.maximum.accumulate(v) - np.minimum.accumulate(v)) > hyst
+    def feed(self, phi: np.ndarray) -> None:
+        n = phi.size
+        if n == 0:
+            return
+        if self._prev is None:
+            d, shift = np.diff(phi), 1
+        else:
+            d, shift = np.diff(phi, prepend=self._prev), 0
+        self._prev = float(phi[-1])
+        r = np.flatnonzero(np.abs(d) > self.tol)
+        if r.size == d.size and d.size:  # every step breaks (continuous sampling): runs of one
+            first = self._run + shift  # the run open at the chunk start ends at its first step
+            if first:
+                self._counts[min(first, _RUN_CAP)] += 1
+            self._counts[1] += r.size - 1
+            self._run = 1
+        elif r.size == 0:
+            self._run += n
+        else:
+            r += shift
+            lengths = np.minimum(np.diff(r, prepend=r[0] - (self._run + r[0])), _RUN_CAP)
+            if lengths[0] == 0:
+                lengths = lengths[1:]
+            self._counts += np.bincount(lengths, minlength=_RUN_CAP + 1)
+            self._run = n - int(r[-1])
+        if self._sense is None:
+            self._find_sense(phi)
 
-    j = _first_index(excursion, 0, n)
-    if j is None:  # the table never moved by more than the hysteresis
-        return [(0, n, 1)]
-    sense = 1 if phi[j] >= phi[: j + 1].max() else -1
-    vals = phi.tolist()
-    short = 64
-    segs = []
-    lo = 0
-    while True:
-        # first reading that retreats by more than the hysteresis from the running extreme
-        k = None
-        best, e = sense * vals[lo], lo
-        stop = min(n, lo + short)
-        for i in range(lo + 1, stop):
-            v = sense * vals[i]
-            if v > best:
-                best, e = v, i
-            elif v < best - hyst:
-                k = i
-                break
-        if k is None and stop < n:
-            def retreat(a, b, s=sense):
-                v = s * phi[a:b]
-                return v < np.maximum.accumulate(v) - hyst
+    def _find_sense(self, phi: np.ndarray) -> None:
+        a, w, n = 0, 64, phi.size
+        while a < n:
+            b = min(n, a + w)
+            v = phi[a:b]
+            cmax = np.maximum(np.maximum.accumulate(v), self._cmax)
+            cmin = np.minimum(np.minimum.accumulate(v), self._cmin)
+            hit = np.flatnonzero(cmax - cmin > self.hyst)
+            if hit.size:
+                j = int(hit[0])
+                self._sense = 1 if v[j] >= cmax[j] else -1
+                return
+            self._cmax, self._cmin = float(cmax[-1]), float(cmin[-1])
+            a, w = b, 2 * w
 
-            k = _first_index(retreat, lo, n)
-            if k is not None:
-                e = lo + int(np.argmax(sense * phi[lo:k]))  # the turning point (first at the extreme)
-                best = sense * phi[e]
-        if k is None:
-            segs.append((lo, n, sense))
-            return segs
-        # the pause around the turning point stays in this segment
-        end = e + 1
-        while end < k and sense * vals[end] >= best - tol:
-            end += 1
-        segs.append((lo, end, sense))
-        lo, sense = end, -sense
-
-
-def _typical_step(phi: np.ndarray, tol: float) -> float:
-    """Median absolute step between readings, ignoring jitter (steps ≤ tol) when the table moves
-    by larger steps; the median nonzero step otherwise."""
-    d = np.abs(np.diff(phi))
-    moving = d[d > tol]
-    if moving.size:
-        return float(np.median(moving))
-    nz = d[d > 0]
-    return float(np.median(nz)) if nz.size else 0.0
-
-
-def _bridge_gaps(phi: np.ndarray, time: np.ndarray, tol: float) -> np.ndarray:
-    """Re-unwrap the steps of a modulo-360° log across gaps in time longer than half a turn.
-
-    Plain unwrapping takes the shortest way between two readings, so a gap in the log during
-    which the table went on turning for more than half a turn loses whole turns.  When the table
-    turns in one sense at a steady rate, the rate (median of dθ/dt over the moving steps) predicts
-    the advance across such a gap; the number of whole turns added is the one that brings the
-    observed step closest to the prediction, and it is added only when the match is unambiguous
-    (within 30°, three typical steps or 2 % of the predicted advance, whichever is largest, and
-    less than half a turn).  A table that stopped during the gap does not match and is left alone.
-    """
-    d = np.diff(phi)
-    dt = np.diff(np.asarray(time, dtype=float))
-    moving = (np.abs(d) > tol) & (dt > 0)
-    if moving.sum() < 8:
-        return phi
-    rates = d[moving] / dt[moving]
-    rate = float(np.median(rates))
-    if rate == 0 or (np.sign(rates) == np.sign(rate)).mean() < 0.95:
-        return phi  # no steady one-way rotation (e.g. a back-and-forth scan)
-    pred = rate * dt
-    long_gap = np.abs(pred) > math.pi
-    if not long_gap.any():
-        return phi
-    step = float(np.median(np.abs(d[moving])))
-    k = np.round((pred - d) / TWO_PI)
-    resid = np.abs(pred - (d + TWO_PI * k))
-    allowed = np.maximum(np.maximum(math.radians(30.0), 3 * step), 0.02 * np.abs(pred))
-    fix = long_gap & (resid <= allowed) & (allowed < math.pi) & (k != 0)
-    if not fix.any():
-        return phi
-    d = d + TWO_PI * np.where(fix, k, 0)
-    return np.concatenate(([phi[0]], phi[0] + np.cumsum(d)))
+    def finish(self) -> Look:
+        counts = self._counts.copy()
+        if self._run:
+            counts[min(self._run, _RUN_CAP)] += 1
+        total = int(counts.sum())
+        med = int(np.searchsorted(np.cumsum(counts), (total - 1) // 2 + 1)) if total else 1
+        return Look(r_typ=max(1, med), sense0=self._sense if self._sense is not None else 1)
 
 
-def number_turns(angle_rad, *, time=None, hysteresis_deg: float = REVERSAL_HYSTERESIS_DEG) -> Turns:
+# ---------------------------------------------------------------------------------- all at once
+def number_turns(angle_rad, *, time=None, hysteresis_deg: float = REVERSAL_HYSTERESIS_DEG,
+                 chunk_rows: int | None = None) -> Turns:
     """Unwrap raw angles (radians) and give each reading a turn number (see the module docstring).
 
     Parameters
@@ -185,112 +161,41 @@ def number_turns(angle_rad, *, time=None, hysteresis_deg: float = REVERSAL_HYSTE
     angle_rad : array
         Raw turntable angles in radians (modulo 2π in either sense, continuous, or marks).
     time : array, optional
-        Times of the readings (seconds).  With them a modulo-360° log is unwrapped correctly
-        across gaps longer than half a turn while the table kept turning (see
-        :func:`_bridge_gaps`); without them the shortest way between readings is taken.
+        Times of the readings (seconds, increasing).  With them a modulo-360° log is unwrapped
+        correctly across gaps longer than half a turn while the table kept turning; without them
+        the shortest way between readings is taken.
     hysteresis_deg : float
         A change of direction needs a retreat larger than this (degrees).
+    chunk_rows : int, optional
+        Feed the readings in chunks of this many (as a chunked reader does); the result is the same.
 
     Returns
     -------
     Turns
-        ``turn`` (per row), ``unwrapped`` angles (radians), ``complete`` and ``sense`` (per turn)
-        and the number of direction reversals.
+        ``turn`` (per row), ``unwrapped`` angles (radians), ``complete`` and ``sense`` (per turn),
+        the number of direction reversals and the index of the first reading after each.
     """
     a = np.asarray(angle_rad, dtype=float).ravel()
     n = a.size
+    t = None if time is None else np.asarray(time, dtype=float).ravel()
     if n == 0:
         return Turns(np.zeros(0, np.int64), a.copy(), np.zeros(0, bool), np.zeros(0, np.int64), 0)
     hyst = math.radians(float(hysteresis_deg))
+    step = n if chunk_rows is None else max(1, int(chunk_rows))
+    parts = [slice(i, min(n, i + step)) for i in range(0, n, step)]
     with np.errstate(over="ignore", invalid="ignore"):
-        if float(a.max()) - float(a.min()) <= TWO_PI + hyst:
-            phi = np.unwrap(a, period=TWO_PI)  # modulo-360° log (or at most one turn)
-            if time is not None and n > 2:
-                phi = _bridge_gaps(phi, time, math.radians(MARK_TOL_DEG))
-        else:
-            phi = a.copy()  # already continuous
-        step0 = _typical_step(phi, math.radians(MARK_TOL_DEG))
-        tol = min(math.radians(MARK_TOL_DEG), step0 / 4) if step0 > 0 else math.radians(MARK_TOL_DEG)
-        step_t = _typical_step(phi, tol) / TWO_PI
-        tol_t = tol / TWO_PI
-        segs = _segments(phi, hyst, tol)
-
-        seg_lo = np.array([lo for lo, _, _ in segs], np.int64)
-        seg_len = np.array([hi - lo for lo, hi, _ in segs], np.int64)
-        seg_s = np.array([s for _, _, s in segs], np.int64)
-        seg_id = np.repeat(np.arange(len(segs)), seg_len)
-        prog = seg_s[seg_id] * phi / TWO_PI  # progress in turns, increasing within each segment
-        turn, complete, sense = _number_segments(prog, phi, seg_id, seg_lo, seg_s, tol_t, step_t)
-    return Turns(turn, phi, complete, sense, len(segs) - 1)
-
-
-def _segmented_cummax(values: np.ndarray, group: np.ndarray) -> np.ndarray:
-    """Running maximum of int64 ``values`` restarted at every new ``group`` (groups ascending)."""
-    if values.size == 0:
-        return values
-    lo, hi = int(values.min()), int(values.max())
-    span = hi - lo + 1
-    if span * (int(group[-1]) + 1) < 2**62:  # exact offset trick
-        off = (values - lo) + group * span
-        return np.maximum.accumulate(off) - group * span + lo
-    out = values.copy()
-    for g in np.unique(group):
-        sel = group == g
-        out[sel] = np.maximum.accumulate(values[sel])
-    return out
-
-
-def _number_segments(prog, phi, seg_id, seg_lo, seg_s, tol_t, step_t):
-    """Turn numbers (rows), completeness and sense (turns) for all segments at once."""
-    n = prog.size
-    seg_start = np.zeros(n, bool)
-    seg_start[seg_lo] = True
-    # stops: consecutive readings closer than the tolerance (jitter while the table pauses)
-    brk = seg_start.copy()
-    brk[1:] |= np.diff(prog) > tol_t
-    starts = np.flatnonzero(brk)
-    lengths = np.diff(np.append(starts, n))
-    r_typ = max(1, int(np.median(lengths)))
-    mean = np.add.reduceat(prog, starts) / lengths
-    stop_seg = seg_id[starts]
-    k = np.floor(mean + tol_t)
-    k = np.clip(k, -(2.0**52), 2.0**52).astype(np.int64)
-    k = _segmented_cummax(k, stop_seg)
-    on_mark = np.abs(mean - np.round(mean)) <= tol_t
-    krow = np.repeat(k, lengths)
-    # a stop on the reference mark that follows the previous turn closes it: wholly when it is the
-    # last stop of its segment, else its surplus over a typical stop (the start mark read again)
-    same_seg = np.zeros(starts.size, bool)
-    same_seg[1:] = stop_seg[1:] == stop_seg[:-1]
-    last_of_seg = np.ones(starts.size, bool)
-    last_of_seg[:-1] = stop_seg[1:] != stop_seg[:-1]
-    closing = np.zeros(starts.size, bool)
-    closing[1:] = same_seg[1:] & on_mark[1:] & (k[1:] == k[:-1] + 1)
-    n_close = np.where(last_of_seg, lengths, lengths - r_typ)
-    for i in np.flatnonzero(closing & (n_close > 0)):
-        krow[starts[i]: starts[i] + n_close[i]] = k[i] - 1
-    # turns: a new one wherever a segment starts or the turn index changes
-    new = seg_start.copy()
-    new[1:] |= krow[1:] != krow[:-1]
-    turn = np.cumsum(new) - 1
-    bounds = np.flatnonzero(new)
-    count = np.diff(np.append(bounds, n))
-    kval = krow[bounds]
-    tseg = seg_id[bounds]
-    pmin = np.minimum.reduceat(prog, bounds)
-    pmax = np.maximum.reduceat(prog, bounds)
-    # after a reversal the segment's first turn starts at the turning point (the reading before)
-    first_turn = np.flatnonzero(seg_start[bounds])
-    for j in first_turn:
-        lo = bounds[j]
-        if lo > 0:
-            entry = seg_s[tseg[j]] * phi[lo - 1] / TWO_PI
-            if math.floor(entry + tol_t) == kval[j]:
-                pmin[j] = min(pmin[j], entry)
-    has_prev = np.zeros(kval.size, bool)
-    has_prev[1:] = (tseg[1:] == tseg[:-1]) & (kval[:-1] == kval[1:] - 1)
-    has_next = np.zeros(kval.size, bool)
-    has_next[:-1] = has_prev[1:]
-    full = (pmax - pmin) + step_t >= 1.0 - 2.0 * tol_t
-    complete = (count >= 3) & ((has_prev & has_next) | full)
-    return turn.astype(np.int64), complete, seg_s[tseg].astype(np.int64)
+        stats = StepStats()
+        for sl in parts:
+            stats.add(a[sl], None if t is None else t[sl])
+        summary = stats.finish(hyst)
+        unw = Unwrapper(summary)
+        phi = np.concatenate([unw.feed(a[sl], None if t is None else t[sl]) for sl in parts])
+        look = SecondLook(summary.tol, hyst)
+        for sl in parts:
+            look.feed(phi[sl])
+        lk = look.finish()
+        counter = TurnCounter(tol=summary.tol, r_typ=lk.r_typ, sense0=lk.sense0, hysteresis_rad=hyst)
+        for i, sl in enumerate(parts):
+            counter.feed(phi[sl], final=i == len(parts) - 1)
+        info = counter.finish()
+    return Turns(info.turn_numbers(), phi, info.complete, info.sense, info.n_reversals, info.seg_starts[1:])
