@@ -72,6 +72,18 @@ def run_meta(scan, per_turn, *, sha256: str | None = None) -> dict:
     }
 
 
+def is_turn_table(path) -> bool:
+    """True when ``path`` is a Parquet file carrying nullfit's per-turn metadata (schema only is read)."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    try:
+        schema = pq.read_schema(path)
+    except (OSError, pa.ArrowException):
+        return False
+    return METADATA_KEY in (schema.metadata or {})
+
+
 @dataclass(frozen=True, eq=False)
 class TurnTable(Described):
     """A per-turn table (pandas ``frame``) with its metadata (``meta``; see the module docstring)."""

@@ -389,27 +389,19 @@ def fit_path(path, *, stream="auto", progress=None, chunk_rows: int | None = Non
     **fit_options
         Keywords of ``fit_scan`` (:func:`fit_stream` for a streamed log).
 
-    When the reading stage offers no ``open_stream``, the log is read into memory and the fit
-    carries a note saying so.
+    A streamed log is read by :func:`nullfit.reading.stream.open_stream` (Parquet only).
     """
     read_options = dict(read_options or {})
     if stream not in ("auto", True, False):
         raise ValueError(f"stream must be 'auto', True or False, not {stream!r}")
     use = stream is True or (stream == "auto" and is_parquet(path) and Path(path).stat().st_size >= STREAM_MIN_BYTES)
-    note = None
     if use:
-        try:
-            from ..reading.stream import open_stream
-        except ImportError:
-            note = "read into memory: this installation has no streaming reader (nullfit.reading.stream.open_stream)"
-        else:
-            if chunk_rows is not None:
-                read_options["chunk_rows"] = chunk_rows
-            return fit_stream(open_stream(path, **read_options), progress=progress, **fit_options)
+        from ..reading.stream import open_stream
+
+        if chunk_rows is not None:
+            read_options["chunk_rows"] = chunk_rows
+        return fit_stream(open_stream(path, **read_options), progress=progress, **fit_options)
     from ..reading.files import read_scan
     from .fit import fit_scan
 
-    fit = fit_scan(read_scan(path, **read_options), **fit_options)
-    if note is not None:
-        fit = dataclasses.replace(fit, notes=fit.notes + (note,))
-    return fit
+    return fit_scan(read_scan(path, **read_options), **fit_options)

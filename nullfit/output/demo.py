@@ -32,8 +32,12 @@ def demo_data_dir(data: str | Path | None = None) -> Path:
 
 
 def demo_scans(folder: Path) -> tuple[list[Path], list[Path]]:
-    """(single scans, campaign runs) in the demo folder, sorted."""
-    singles = sorted(folder.glob("*.csv")) + sorted(folder.glob("*.parquet"))
+    """(single scans, campaign runs) in the demo folder, sorted; Parquet files that are per-turn
+    tables (the sky demo) are not scan logs and are left out."""
+    from ..campaign.turn_table import is_turn_table
+
+    parquet = [p for p in sorted(folder.glob("*.parquet")) if not is_turn_table(p)]
+    singles = sorted(folder.glob("*.csv")) + parquet
     campaign = sorted((folder / "campaign").glob("*.csv")) if (folder / "campaign").is_dir() else []
     return singles, campaign
 

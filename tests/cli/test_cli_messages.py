@@ -149,7 +149,7 @@ def test_time_jump_is_reported_by_fit_and_info(logs):
     info = json.loads(run_cli("info", logs["jump"], "--json").stdout)
     assert len(fit["gaps"]) == 1 == len(info["gaps"])
     g = fit["gaps"][0]
-    assert g["row"] == 601 and g["seconds"] == pytest.approx(3 * 86400.0, rel=1e-3)
+    assert g["row"] == 601 and g["duration_s"] == pytest.approx(3 * 86400.0, rel=1e-3)
     for cmd in ("fit", "info"):
         text = run_cli(cmd, logs["jump"]).stdout
         assert "gap" in text and "row 601" in text

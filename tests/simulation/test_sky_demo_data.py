@@ -4,7 +4,7 @@ import importlib.util
 import sys
 from pathlib import Path
 
-import pandas as pd
+import numpy as np
 import pytest
 
 from nullfit.campaign.turn_table import TurnTable
@@ -27,7 +27,18 @@ MAKE = _load_script()
 def test_regenerated_table_equals_the_committed_one(tmp_path):
     made = TurnTable.read(MAKE.make_sky_demo(tmp_path))
     committed = TurnTable.read(DEMO / MAKE.FILE)
-    pd.testing.assert_frame_equal(made.frame, committed.frame, check_exact=True)
+    # the readings are drawn exactly (fixed seed); the per-turn coefficients come out of linear
+    # algebra whose last bits may differ between machines and numpy builds: agreement to 1e-9 of
+    # each column's scale (a coefficient near zero has no meaningful relative error)
+    a, b = made.frame, committed.frame
+    assert list(a.columns) == list(b.columns) and len(a) == len(b)
+    for col in a.columns:
+        x, y = a[col].to_numpy(), b[col].to_numpy()
+        if x.dtype.kind == "f":
+            scale = float(np.nanmax(np.abs(y))) if np.isfinite(y).any() else 0.0
+            np.testing.assert_allclose(x, y, rtol=0, atol=1e-9 * scale, err_msg=col)
+        else:
+            np.testing.assert_array_equal(x, y, err_msg=col)
     assert made.meta == committed.meta, ("data_demo/sky_turns.parquet differs from what make_sky_demo.py "
                                          "writes; regenerate with `python data_demo/make_sky_demo.py --force`")
     with pytest.raises(FileExistsError, match="--force"):
