@@ -13,6 +13,7 @@ The same ratio follows from the two peak-to-peak values.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from types import SimpleNamespace
 from pathlib import Path
 from typing import Any, Mapping
 
@@ -20,6 +21,7 @@ import numpy as np
 
 from ..core.conventions import check_confidence_level, make_rng, peak_to_peak
 from ..core.errors import AnalysisError
+from ..reading.stream import ScanStream
 from ..core.render import Described, Summary
 from .facts import aux_status, plural, reading_facts, reading_notes, reading_rows
 
@@ -309,7 +311,7 @@ def analyse(scan, *, harmonics=(1, 2), harmonic: int = 2, drift="per-turn", erro
             limits=DEFAULT_LIMITS, confidence_level: float = 0.95, rng=None, apparatus=None, site=None,
             velocity=None, speed_m_s: float | None = None, bootstrap_replicates: int = 10_000,
             progress: bool | None = None, aux=None) -> RunAnalysis:
-    """Fit ``scan``, put limits on harmonic ``harmonic`` by each method in ``limits``, and, when a
+    """Fit ``scan`` (a `Scan`, or a `ScanStream` for a log too large for memory), put limits on harmonic ``harmonic`` by each method in ``limits``, and, when a
     hypothesis is given (``speed_m_s`` and/or ``velocity``), compute the expected signal and the
     expected/bound ratio.  ``drift`` and ``errors`` are passed to :func:`nullfit.fit_scan`
     (which takes ``"poly:3"``, ``"spline:2"``, ``"hac:12"``, ``"blocks:5"``), and so is ``aux``
@@ -339,7 +341,13 @@ def analyse(scan, *, harmonics=(1, 2), harmonic: int = 2, drift="per-turn", erro
     fit_kw: dict[str, Any] = {}
     if aux:
         fit_kw["aux"] = [aux] if isinstance(aux, str) else list(aux)
-    fit = fit_scan(scan, harmonics=ks, drift=drift, errors=errors, **fit_kw)
+    streamed = isinstance(scan, ScanStream)
+    if streamed:  # a log too large for memory: the fit reads it chunk by chunk
+        from ..fitting.stream import fit_stream
+
+        fit = fit_stream(scan, harmonics=ks, drift=drift, errors=errors, progress=progress, **fit_kw)
+    else:
+        fit = fit_scan(scan, harmonics=ks, drift=drift, errors=errors, **fit_kw)
     est = fit.harmonic(harmonic)
     out: dict[str, Any] = {}
     failed: dict[str, str] = {}
@@ -387,7 +395,13 @@ def analyse(scan, *, harmonics=(1, 2), harmonic: int = 2, drift="per-turn", erro
             raise AnalysisError(f"{scan.source}: the expected signal needs the apparatus (arm_length_m and "
                                 "wavelength_m): pass apparatus=Apparatus(...) or give an [apparatus] table in "
                                 "the manifest")
-        expected = expected_for_scan(scan, velocity, apparatus=app, site=site, speed_m_s=speed_m_s)
+        if streamed:  # the readings are not in memory: average the hypothesis over the turns' mid times
+            times = SimpleNamespace(time=fit.per_turn["time_mid_s"].to_numpy(dtype=float), epoch_unix=scan.epoch_unix,
+                                    meta=scan.meta, unit=scan.unit)
+            expected = expected_for_scan(times, velocity, apparatus=app, site=site, speed_m_s=speed_m_s)
+            notes.append("streamed log: the expected signal is averaged over the mid times of the fitted turns")
+        else:
+            expected = expected_for_scan(scan, velocity, apparatus=app, site=site, speed_m_s=speed_m_s)
     settings = {"harmonics": list(ks), "limit_harmonic": harmonic, "drift": fit.drift, "errors": fit.errors,
                 "confidence_level": cl, "limits": list(methods),
                 "hypothesis": None if expected is None else expected.hypothesis_label,

@@ -18,6 +18,9 @@ def add_parser(sub) -> None:
     fit_options(f)
     limit_options(f, default="none; feldman-cousins when --speed or --wind is given")
     expected_options(f)
+    f.add_argument("--stream", choices=("auto", "yes", "no"), default="auto",
+                   help="read the log chunk by chunk: auto (default) for Parquet logs of 1 GiB or more; a progress "
+                        "bar shows on a terminal")
     f.add_argument("--json", action="store_true", help="print one JSON object on stdout")
 
 

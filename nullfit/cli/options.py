@@ -119,7 +119,29 @@ def read_log(args, path=None):
         if "aux" in override:
             changes["aux_columns"] = tuple(dict.fromkeys(tuple(m.aux_columns) + tuple(override["aux"])))
         man = replace(m, **changes)
+    if streaming(args, path):
+        from ..reading.stream import open_stream
+
+        kw.pop("start_utc", None)
+        return open_stream(path, manifest=man, **kw)
     return read_scan(path, manifest=man, **kw)
+
+
+def streaming(args, path) -> bool:
+    """Read ``path`` chunk by chunk?  ``--stream yes``; or ``auto`` (the default) for a Parquet log of at
+    least ``nullfit.fitting.stream.STREAM_MIN_BYTES``."""
+    from pathlib import Path
+
+    choice = getattr(args, "stream", "no")
+    if choice == "no" or not Path(path).is_file():
+        return False
+    from ..fitting.stream import STREAM_MIN_BYTES, is_parquet
+
+    if choice == "yes":
+        if not is_parquet(path):
+            raise UsageError("--stream yes reads Parquet logs only (convert the CSV log to Parquet)")
+        return True
+    return is_parquet(path) and Path(path).stat().st_size >= STREAM_MIN_BYTES
 
 
 def normalise_utc(text: str) -> str:

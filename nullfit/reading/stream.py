@@ -113,6 +113,15 @@ class ScanStream:
         """Rows dropped while reading (as ``Scan.dropped_rows``)."""
         return int(sum(c for _, c in self.dropped))
 
+    @property
+    def run_id(self) -> str:
+        """The manifest's run id, else the file stem (as `Scan.run_id`)."""
+        from pathlib import Path
+
+        if self.meta.run_id:
+            return str(self.meta.run_id)
+        return Path(self.source).stem if self.source and not self.source.startswith("<") else "scan"
+
     def __iter__(self) -> Iterator[ScanChunk]:
         n = 0
         for ch in self._chunks():
