@@ -12,11 +12,11 @@ import argparse
 import sys
 from pathlib import Path
 
-from . import compare, demo, fit, info, report
+from . import compare, demo, fit, info, report, turns
 from .options import EXIT_BAD_INPUT, UsageError
 
 #: Sub-commands in the order ``--help`` lists them.
-COMMANDS = {"demo": demo, "info": info, "fit": fit, "compare": compare, "report": report}
+COMMANDS = {"demo": demo, "info": info, "fit": fit, "compare": compare, "report": report, "turns": turns}
 
 
 def build_parser() -> argparse.ArgumentParser:
