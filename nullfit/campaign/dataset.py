@@ -388,15 +388,23 @@ def _assemble(results, planned_failures, prev: TurnTable | None, options: Campai
         if r.status == "skipped":
             done["skipped"].append(r.run_id)
             continue  # its rows and record are kept from the earlier table below
-        if old is not None:
+        if old is not None and old.get("sha256") != r.sha256:  # (a changed manifest was noted when planning)
             was = f" (was {old.get('source')})" if old.get("source") != r.source else ""
             notes.append(f"run {r.run_id}: the log changed since the table was written{was}; demodulated again")
         frames.append(r.rows)
         runs[r.run_id] = r.meta
         done["demodulated"].append(r.run_id)
     if prev is not None:
-        keep = [rid for rid, m in prev.runs.items()
-                if rid not in runs and rid not in gone_ids and m.get("source") not in gone_sources]
+        now = {r.source: r.run_id for r in results if r.status != "failed"}  # the run id each log has now
+        keep = []
+        for rid, m in prev.runs.items():
+            src = m.get("source")
+            if rid in runs or rid in gone_ids or src in gone_sources:
+                continue
+            if now.get(src, rid) != rid:
+                notes.append(f"run {rid}: its log {src} is now run {now[src]}; {rid} is left out of the table")
+                continue
+            keep.append(rid)
         frames.append(prev.frame[prev.frame["run"].isin(keep)])
         runs.update({rid: prev.runs[rid] for rid in keep})
         tried = {r.source for r in results} | set(planned_failures)

@@ -11,7 +11,8 @@ Dask is optional (``pip install 'nullfit[dask]'``).  The three ways to run:
     this process.
 ``scheduler="tcp://host:port"``
     The workers of an existing scheduler (any number of machines).  Each worker must have nullfit
-    installed and see the task's files under the same paths.
+    installed and see the task's files under the same paths; start them without
+    ``MALLOC_TRIM_THRESHOLD_`` for the speed of a local cluster (see `LOCAL_WORKER_ENV`).
 
 Without ``dask.distributed`` the tasks run in this process and the returned `Execution` carries a
 note saying so; a scheduler address then cannot be used and is refused.  At most one task also
@@ -33,6 +34,14 @@ from dataclasses import dataclass
 from typing import Any, Callable, Sequence
 
 DASK_HINT = "pip install 'nullfit[dask]'"
+
+#: Dask configuration of the local cluster's worker processes.  Dask starts its workers with
+#: ``MALLOC_TRIM_THRESHOLD_=65536`` (to hand freed memory back to the system quickly); setting it
+#: also freezes glibc's mmap threshold (glibc's ``mallopt`` documentation, recalled from memory),
+#: so every large numpy temporary becomes a fresh memory mapping.  Measured on 500 000-reading
+#: logs (one worker, 7 logs): 2.3 s of system time with it, 0.2 s without, the same as in this
+#: process.  The local cluster leaves the variable unset (one thread per process is kept).
+LOCAL_WORKER_ENV = {"distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_": None}
 
 
 @dataclass(frozen=True)
@@ -116,15 +125,20 @@ def run_tasks(func: Callable, tasks: Sequence, *, workers: int | None = None, sc
             return _gather(dist, client, func, tasks, kwargs, (progress, desc, unit), failure), \
                 Execution("scheduler", n, scheduler)
     n = min(workers or default_workers(), len(tasks))
-    with warnings.catch_warnings():
-        # the scheduler's small HTTP server moves to a free port when 8787 is taken (another
-        # cluster on the machine) and says so; that is no concern of a one-off local cluster
-        warnings.filterwarnings("ignore", message="Port .* is already in use", category=UserWarning)
-        cluster = dist.LocalCluster(n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None,
-                                    silence_logs=logging.ERROR)
-    with cluster, dist.Client(cluster) as client:
-        return _gather(dist, client, func, tasks, kwargs, (progress, desc, unit), failure), \
-            Execution("local-cluster", n, cluster.scheduler_address)
+    environ = dict(os.environ)  # Dask's nannies write their workers' settings into this process's environment
+    try:
+        with warnings.catch_warnings(), importlib.import_module("dask.config").set(LOCAL_WORKER_ENV):
+            # the scheduler's small HTTP server moves to a free port when 8787 is taken (another
+            # cluster on the machine) and says so; that is no concern of a one-off local cluster
+            warnings.filterwarnings("ignore", message="Port .* is already in use", category=UserWarning)
+            cluster = dist.LocalCluster(n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None,
+                                        silence_logs=logging.ERROR)
+        with cluster, dist.Client(cluster) as client:
+            return _gather(dist, client, func, tasks, kwargs, (progress, desc, unit), failure), \
+                Execution("local-cluster", n, cluster.scheduler_address)
+    finally:
+        os.environ.clear()
+        os.environ.update(environ)
 
 
 def _gather(dist, client, func, tasks, kwargs, bar_args, failure) -> list:

@@ -93,7 +93,9 @@ def test_cluster_table_equals_serial(campaign, cluster):
 
 def test_own_local_cluster_equals_serial(campaign):
     good, _, serial = campaign
+    environ = dict(os.environ)
     par = demodulate_campaign(good[:3], aux="tilt", workers=2)
+    assert dict(os.environ) == environ  # the cluster's worker settings do not leak into this process
     assert par.meta["campaign"]["execution"]["kind"] == "local-cluster"
     assert par.meta["campaign"]["execution"]["workers"] == 2
     assert par.frame.equals(serial.frame[serial.frame.run.isin([p.stem for p in good[:3]])].reset_index(drop=True))
@@ -137,6 +139,13 @@ def test_resume_skips_unchanged_and_redoes_changed(tmp_path, write_logs, monkeyp
     logs[0].with_suffix(".toml").write_text('[columns]\ntime = "unix_s"\naux = ["tilt"]\n[site]\nname = "hall"\n')
     third = demodulate_campaign(logs, aux=["tilt"], workers=0, resume=again)
     assert third.meta["campaign"]["demodulated"] == ["R0"] and third.runs["R0"]["site"] == {"name": "hall"}
+    assert [n for n in third.meta["campaign"]["notes"] if "R0" in n] == [
+        "run R0: its manifest changed since the table was written; demodulated again"]
+    # a log whose manifest now gives it another run id: the old run is replaced, not kept twice
+    logs[2].with_suffix(".toml").write_text('[scan]\nrun_id = "Z"\n[columns]\ntime = "unix_s"\naux = ["tilt"]\n')
+    fourth = demodulate_campaign(logs, aux=["tilt"], workers=0, resume=third)
+    assert sorted(fourth.runs) == ["R0", "R1", "Z"] and set(fourth.frame.run) == {"R0", "R1", "Z"}
+    assert any("R2" in n and "now run Z" in n for n in fourth.meta["campaign"]["notes"])
     # other options than the table's are refused before anything is read
     with pytest.raises(ValueError, match="harmonics"):
         demodulate_campaign(logs, harmonics=(2,), aux=["tilt"], resume=again)
