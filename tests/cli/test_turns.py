@@ -50,6 +50,7 @@ def test_one_corrupt_log_among_good_ones(logs, tmp_path, capsys):
 def test_local_cluster_through_the_console_entry_point(logs, tmp_path):
     """The default path (a local Dask cluster started and closed by nullfit) in a real process:
     stdout and stderr are one line each, no traceback, no log noise from the cluster."""
+    pytest.importorskip("distributed")
     good, bad = logs
     out = tmp_path / "turns.parquet"
     r = subprocess.run([sys.executable, "-m", "nullfit.cli", "turns", *map(str, good), str(bad), "-o", str(out),
