@@ -119,9 +119,10 @@ class LogResult:
 
 
 # --------------------------------------------------------------------------- the logs
-def find_logs(paths) -> list[tuple[Path, str | None, tuple[tuple[str, str], ...]]]:
+def find_logs(paths, notes: list | None = None) -> list[tuple[Path, str | None, tuple[tuple[str, str], ...]]]:
     """``(file, run id within a dataset folder or None, partition)`` for every log the paths name
-    (see the module docstring); a folder without Parquet files is refused (`ScanError`)."""
+    (see the module docstring); a folder without Parquet files is refused (`ScanError`).  Files of
+    a dataset folder that are neither logs nor manifests are counted in ``notes`` (if given)."""
     if isinstance(paths, (str, Path)):
         paths = [paths]
     out = []
@@ -129,8 +130,16 @@ def find_logs(paths) -> list[tuple[Path, str | None, tuple[tuple[str, str], ...]
         if not p.is_dir():
             out.append((p, None, ()))
             continue
-        files = sorted(f for f in p.rglob("*") if f.suffix.lower() in PARQUET_SUFFIXES and f.is_file()
-                       and not any(part.startswith((".", "_")) for part in f.relative_to(p).parts))
+        files, other = [], 0
+        for f in sorted(q for q in p.rglob("*") if q.is_file()):
+            hidden = any(part.startswith((".", "_")) for part in f.relative_to(p).parts)
+            if f.suffix.lower() in PARQUET_SUFFIXES and not hidden:
+                files.append(f)
+            elif f.suffix.lower() != ".toml":
+                other += 1
+        if other and notes is not None:
+            notes.append(f"{p}: {other} file(s) that are not Parquet logs (other suffixes, or names beginning with "
+                         "'.' or '_') were left out")
         if not files:
             raise ScanError(f"{p}: a folder without Parquet files (*.parquet, *.pq, *.parq); give log files, or the "
                             "folder of a Parquet dataset")
@@ -260,13 +269,15 @@ def demodulate_campaign(paths, *, harmonics=(1, 2), drift="per-turn", complete_o
     if manifest is not None and manifest is not False and not isinstance(manifest, Manifest):
         manifest = load_manifest(manifest)
     prev = _previous(resume, options, manifest)
-    found = find_logs(paths)
+    found_notes: list[str] = []
+    found = find_logs(paths, found_notes)
     if not found:
         raise ValueError("no logs given")
     if isinstance(manifest, Manifest) and manifest.run_id and len(found) > 1:
         raise ValueError(f"the manifest {manifest.path} sets run id {manifest.run_id!r}, which would be the id of "
                          f"all {len(found)} logs; give each log its own manifest")
     tasks, planned_failures, notes = _plan(found, manifest, prev)
+    notes[:0] = found_notes
     results, how = run_tasks(demodulate_log, tasks, workers=workers, scheduler=scheduler, progress=progress,
                              desc="demodulating logs", unit="log", options=options,
                              failure=lambda t, why: LogResult(t.path, t.run_id, "failed", reason=f"{t.path}: {why}"))

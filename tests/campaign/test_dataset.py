@@ -219,6 +219,8 @@ def test_hive_partitioned_dataset(tmp_path, write_logs):
     meta = tt.runs["site=hall/day=2026-03-15/part-0"]
     assert meta["partition"] == {"site": "hall", "day": "2026-03-15"} and meta["source"] == str(b)
     assert not tt.failed
+    notes = tt.meta["campaign"]["notes"]  # _SUCCESS, .part-9.parquet and _common_metadata.parquet were left out
+    assert any("3 file(s) that are not Parquet logs" in n for n in notes)
     np.testing.assert_array_equal(tt.frame[tt.frame.run.str.endswith("14/part-0")]["c2"].to_numpy(),
                                   demodulate(_quiet_read(a))["c2"].to_numpy())
     empty = tmp_path / "empty"
