@@ -19,7 +19,9 @@ programs falls on all of them alike; per configuration the best and the median r
 reported, and the ratios are formed from the best times (the least disturbed) and from the
 medians.  The CPU time of this process and its worker processes is shown beside the wall time,
 and the load average before each configuration: on a machine shared with other programs, two
-workers can only be twice as fast as one when two cores are free.  The tables of all
+workers can only be twice as fast as one when two cores are free.  Every round also measures
+how much faster two processes do plain numpy work than one at that moment (the same total work):
+the most that two workers could gain then.  The tables of all
 configurations are checked to be identical.  Target: 2 workers at
 least 1.6× faster than 1 worker on two cores.  The temporary folder is deleted at the end.
 """
@@ -27,6 +29,7 @@ least 1.6× faster than 1 worker on two cores.  The temporary folder is deleted 
 from __future__ import annotations
 
 import argparse
+import multiprocessing
 import os
 import resource
 import signal
@@ -63,6 +66,28 @@ def write_logs(folder: Path, n_logs: int, readings: int) -> list[Path]:
     return paths
 
 
+def _spin(units: int) -> None:
+    x = np.random.default_rng(0).normal(size=1_000_000)
+    for _ in range(units * 25):
+        np.cos(x).sum()
+
+
+def machine_scaling(units: int = 4) -> float:
+    """How much faster two processes do plain numpy work than one, on this machine right now
+    (the same total work; the processes are started before timing).  Two campaign workers can
+    be at most about this much faster than one."""
+    ctx = multiprocessing.get_context("spawn")
+    with ctx.Pool(2) as pool:
+        pool.map(_spin, [0, 0], chunksize=1)
+        t0 = time.perf_counter()
+        pool.apply(_spin, (units,))
+        one = time.perf_counter() - t0
+        t0 = time.perf_counter()
+        pool.map(_spin, [units // 2, units // 2], chunksize=1)
+        two = time.perf_counter() - t0
+    return one / two
+
+
 def cpu_seconds() -> float:
     """User + system CPU time of this process and of its finished child processes (the workers)."""
     me, kids = resource.getrusage(resource.RUSAGE_SELF), resource.getrusage(resource.RUSAGE_CHILDREN)
@@ -83,15 +108,18 @@ def main(argv=None) -> None:
     configs = {"serial loop (workers=0)": 0, "1 worker process": 1, "2 worker processes": 2}
     times: dict[str, list[float]] = {name: [] for name in configs}
     cpus: dict[str, list[float]] = {name: [] for name in configs}
+    scaling: list[float] = []
     with tempfile.TemporaryDirectory(prefix="nullfit-bench-campaign-") as tmp:
         t0 = time.perf_counter()
         logs = write_logs(Path(tmp), args.logs, int(args.readings))
         size = sum(p.stat().st_size for p in logs)
         print(f"{args.logs} logs x {int(args.readings):.0e} readings ({size / 1e6:.0f} MB of Parquet) written in "
-              f"{time.perf_counter() - t0:.1f} s; {args.rounds} round(s)")
+              f"{time.perf_counter() - t0:.1f} s; {args.rounds} round(s)", flush=True)
         reference = None
         names = list(configs)
         for r in range(args.rounds):
+            scaling.append(machine_scaling())
+            print(f"  round {r + 1}: plain numpy work, 2 processes vs 1: {scaling[-1]:.2f}x", flush=True)
             for name in names[r % len(names):] + names[:r % len(names)]:
                 with warnings.catch_warnings():
                     warnings.simplefilter("ignore")
@@ -107,7 +135,7 @@ def main(argv=None) -> None:
                     reference = table
                 elif not table.frame.equals(reference.frame):
                     raise SystemExit(f"{name}: the table differs from the first configuration's")
-                print(f"  round {r + 1}: {name:<24} {dt:7.2f} s   cpu {cpu:6.1f} s   load before {load0:.1f}")
+                print(f"  round {r + 1}: {name:<24} {dt:7.2f} s   cpu {cpu:6.1f} s   load before {load0:.1f}", flush=True)
     print()
     print(f"{'configuration':<26}{'best':>9}{'median':>9}   per log (best)   cpu (median)")
     for name, ts in times.items():
@@ -117,6 +145,8 @@ def main(argv=None) -> None:
     print()
     print(f"2 workers vs 1 worker:  {min(one) / min(two):.2f}x (best)   "
           f"{statistics.median(one) / statistics.median(two):.2f}x (median)   target >= 1.6x")
+    print(f"  the machine meanwhile: plain numpy work in 2 processes vs 1: {max(scaling):.2f}x (best), "
+          f"{statistics.median(scaling):.2f}x (median) -- the most two workers could gain")
     print(f"2 workers vs the loop:  {min(loop) / min(two):.2f}x (best)   "
           f"{statistics.median(loop) / statistics.median(two):.2f}x (median)")
     print(f"1 worker vs the loop:   {min(loop) / min(one):.2f}x (best)   (the cost of a cluster of one)")

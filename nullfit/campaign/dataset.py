@@ -216,7 +216,7 @@ def _demodulate(task: LogTask, options: CampaignOptions, sha: str):
                 rows[f"aux_{stem}{k}_{name}"] = apt[f"{stem}{k}"].to_numpy()
     meta = run_meta(scan, pt, sha256=sha, manifest=task.manifest.path if task.manifest is not None else None,
                     manifest_sha256=task.manifest_sha256, partition=dict(task.partition),
-                    nullfit_version=__version__)
+                    aux_read=list(scan.aux), nullfit_version=__version__)
     return rows, meta
 
 
@@ -268,7 +268,7 @@ def demodulate_campaign(paths, *, harmonics=(1, 2), drift="per-turn", complete_o
     check_workers(workers, scheduler)
     if manifest is not None and manifest is not False and not isinstance(manifest, Manifest):
         manifest = load_manifest(manifest)
-    prev = _previous(resume, options, manifest)
+    prev = _previous(resume, options)
     found_notes: list[str] = []
     found = find_logs(paths, found_notes)
     if not found:
@@ -315,7 +315,7 @@ def _options(harmonics, drift, complete_only, aux, time, angle, signal, angle_un
                            aux, time, angle, signal, angle_unit, signal_unit, nonfinite)
 
 
-def _previous(resume, options: CampaignOptions, manifest) -> TurnTable | None:
+def _previous(resume, options: CampaignOptions) -> TurnTable | None:
     if resume is None:
         return None
     prev = resume if isinstance(resume, TurnTable) else TurnTable.read(resume)

@@ -78,6 +78,7 @@ def test_rows_are_each_logs_own_demodulation(campaign, loop_reference):
         assert meta["sha256"] == hashlib.sha256(path.read_bytes()).hexdigest()
         assert meta["manifest_sha256"] == hashlib.sha256(path.with_suffix(".toml").read_bytes()).hexdigest()
         assert meta["source"] == str(path) and meta["absolute_time"] and meta["warnings"] == []
+        assert meta["aux_read"] == ["tilt"] and meta["partition"] == {}
     assert tt.failed[str(bad)].startswith(str(bad)) and "\n" not in tt.failed[str(bad)]
     assert tt.meta["provenance"]["versions"]["nullfit"] == tt.meta["nullfit_version"]
 
