@@ -79,6 +79,8 @@ _EXPORTS = {
     "analyse": "campaign.analysis",
     "RunAnalysis": "campaign.analysis",
     "compare_runs": "campaign.runs",
+    "demodulate_campaign": "campaign.dataset",
+    "TurnTable": "campaign.turn_table",
     "combine_lab": "campaign.combine",
     "combine_sky": "campaign.combine",
     "LabCombination": "campaign.combine",

@@ -195,3 +195,33 @@ def sky_turns():
 @pytest.fixture
 def hotelling_p():
     return _hotelling_p
+
+
+def _write_logs(folder, n=4, *, seed=0, n_turns=8, samples_per_turn=48, fmt="parquet", stem="R"):
+    """Write ``n`` synthetic logs (Unix-second times, a 2θ signal, a random-walk ``tilt`` channel)
+    with a manifest beside each (``[columns] time = "unix_s"``, ``aux = ["tilt"]``); their paths."""
+    from pathlib import Path
+
+    from nullfit import simulate_frame
+
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    paths = []
+    for i in range(n):
+        df, _ = simulate_frame(n_turns=n_turns, samples_per_turn=samples_per_turn, sigma=0.01,
+                               harmonics={2: (0.02, 30.0)}, rng=seed + i, epoch_unix=1_780_000_000 + 86_400 * i,
+                               time_format="unix")
+        df["tilt"] = np.cumsum(np.random.default_rng(1000 + seed + i).normal(size=len(df))) * 0.1
+        path = folder / f"{stem}{i}.{fmt}"
+        if fmt == "csv":
+            df.to_csv(path, index=False)
+        else:
+            df.to_parquet(path, index=False)
+        path.with_suffix(".toml").write_text('[columns]\ntime = "unix_s"\naux = ["tilt"]\n')
+        paths.append(path)
+    return paths
+
+
+@pytest.fixture(scope="session")
+def write_logs():
+    return _write_logs

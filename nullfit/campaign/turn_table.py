@@ -8,7 +8,10 @@ and metadata are fixed here and described in ``docs/turn-table.md``:
 the midpoint of the turn's first and last reading; nanoseconds since the log's own start when the
 log has no absolute time), ``n_samples`` (int64), and for every harmonic ``k``: ``c{k}``,
 ``s{k}``, ``sigma_c{k}``, ``sigma_s{k}`` (the log's unit; the σ are white-noise errors of that
-turn alone), then ``resid_rms`` and ``complete`` (bool).
+turn alone), then ``resid_rms`` and ``complete`` (bool).  A table made with auxiliary channels
+(``nullfit turns --aux``) adds, for every channel ``name`` and harmonic ``k``, the channel's own
+per-turn coefficients ``aux_c{k}_{name}``, ``aux_s{k}_{name}``, ``aux_sigma_c{k}_{name}``,
+``aux_sigma_s{k}_{name}`` (:func:`aux_columns`).
 
 The metadata (``TurnTable.meta``, stored as JSON in the Parquet file under the key ``nullfit``)
 record the schema version, the package version, the harmonics and drift model, and per run:
@@ -41,21 +44,30 @@ def turn_columns(harmonics) -> list[str]:
     return cols + ["resid_rms", "complete"]
 
 
-def run_rows(scan, per_turn) -> "Any":
-    """The rows of one run: the per-turn frame of :func:`nullfit.demodulate` with the run id and
-    absolute mid times (integer ns) added."""
+def aux_columns(harmonics, aux) -> list[str]:
+    """The columns a table adds for auxiliary channels demodulated per turn like the signal:
+    ``aux_c{k}_{name}``, ``aux_s{k}_{name}``, ``aux_sigma_c{k}_{name}``, ``aux_sigma_s{k}_{name}``
+    for every channel ``name`` (in the order given) and every harmonic ``k``."""
+    return [f"aux_{stem}{k}_{name}" for name in aux for k in harmonics for stem in ("c", "s", "sigma_c", "sigma_s")]
+
+
+def run_rows(scan, per_turn, *, run_id: str | None = None) -> "Any":
+    """The rows of one run: the per-turn frame of :func:`nullfit.demodulate` with the run id
+    (``run_id``, default ``scan.run_id``) and absolute mid times (integer ns) added."""
     df = per_turn.copy()
+    df.attrs = {}
     rel_ns = np.rint(df.pop("time_mid_s").to_numpy(dtype=float) * NS_PER_S).astype(np.int64)
     epoch = scan.epoch_unix
-    df.insert(0, "run", scan.run_id)
+    df.insert(0, "run", scan.run_id if run_id is None else run_id)
     df.insert(2, "t_mid_ns", rel_ns + (0 if epoch is None else int(epoch) * NS_PER_S))
     df["n_samples"] = df["n_samples"].astype(np.int64)
     df["turn"] = df["turn"].astype(np.int64)
     return df
 
 
-def run_meta(scan, per_turn, *, sha256: str | None = None) -> dict:
-    """What the table records about one run (see the module docstring)."""
+def run_meta(scan, per_turn, *, sha256: str | None = None, **extra) -> dict:
+    """What the table records about one run (see the module docstring); ``extra`` keys (e.g. the
+    manifest's path and SHA-256, the partition of a dataset) are added as given."""
     return {
         "source": scan.source,
         "sha256": sha256,
@@ -69,6 +81,7 @@ def run_meta(scan, per_turn, *, sha256: str | None = None) -> dict:
         "dropped_rows": scan.dropped_rows,
         "dropped": {why: int(c) for why, c in scan.dropped},
         "excluded": dict(per_turn.attrs.get("excluded", {})),
+        **extra,
     }
 
 
@@ -98,6 +111,16 @@ class TurnTable(Described):
     @property
     def runs(self) -> Mapping[str, Mapping[str, Any]]:
         return self.meta.get("runs", {})
+
+    @property
+    def aux(self) -> tuple[str, ...]:
+        """Auxiliary channels demodulated per turn (their columns: :func:`aux_columns`)."""
+        return tuple(self.meta.get("aux", ()))
+
+    @property
+    def failed(self) -> Mapping[str, str]:
+        """Logs that could not be demodulated: source → one-line reason."""
+        return self.meta.get("failed", {})
 
     @property
     def n_turns(self) -> int:
@@ -177,14 +200,19 @@ class TurnTable(Described):
     def to_dict(self) -> dict:
         f = self.frame
         return {"n_runs": len(self.runs), "n_turns": self.n_turns, "harmonics": list(self.harmonics),
-                "drift": self.meta.get("drift"), "runs": sorted(self.runs), "failed": dict(self.meta.get("failed", {})),
+                "drift": self.meta.get("drift"), "aux": list(self.aux), "runs": sorted(self.runs),
+                "failed": dict(self.meta.get("failed", {})),
                 "first_t_mid_ns": int(f["t_mid_ns"].min()) if len(f) else None,
                 "last_t_mid_ns": int(f["t_mid_ns"].max()) if len(f) else None}
 
     def summary(self) -> Summary:
         rows = [("runs", len(self.runs), ""), ("turns", self.n_turns, ""),
                 ("harmonics", ", ".join(map(str, self.harmonics)), ""), ("drift", self.meta.get("drift"), "")]
-        notes = tuple(f"failed: {src}: {why}" for src, why in self.meta.get("failed", {}).items())
+        if self.aux:
+            rows.append(("auxiliary channels", ", ".join(self.aux), ""))
+        notes = tuple(f"failed: {why if why.startswith(src) else f'{src}: {why}'}"
+                      for src, why in self.meta.get("failed", {}).items())
+        notes += tuple(self.meta.get("campaign", {}).get("notes", ()))
         return Summary("Per-turn table", tuple(rows), notes)
 
     def __repr__(self) -> str:

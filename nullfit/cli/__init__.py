@@ -20,6 +20,7 @@ from . import info
 from . import report
 from . import sidereal
 from . import simulate
+from . import turns
 from .options import EXIT_BAD_INPUT, UsageError
 from .wording import one_line, show_warning, to_flags
 
@@ -33,6 +34,7 @@ COMMANDS = {
     "report": report,
     "simulate": simulate,
     "sidereal": sidereal,
+    "turns": turns,
 }
 
 
