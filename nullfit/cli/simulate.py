@@ -38,8 +38,20 @@ def add_parser(sub) -> None:
     g.add_argument("--c2", type=float, default=None, metavar="C", help="cos 2θ coefficient (instead of --amplitude)")
     g.add_argument("--s2", type=float, default=None, metavar="S", help="sin 2θ coefficient (instead of --amplitude)")
     g.add_argument("--amplitude-1theta", type=float, default=0.0, metavar="A", help="1θ amplitude (default 0)")
-    # A sky-frame (sidereal SME/RMS) injection joins here as its own option group, feeding
-    # nullfit.simulation.logs.simulate_log(extra=[(name, function)]).
+
+    g = s.add_argument_group("sky-frame signal (sidereal and annual modulation, docs/sky.md)")
+    g.add_argument("--sky-model", choices=("sme", "rms"), default=None,
+                   help="inject the signal of a test theory (needs --site, --mark-azimuth and an absolute start)")
+    g.add_argument("--sky", metavar="NAME=VALUE[,NAME=VALUE]", default=None,
+                   help="its parameters: e_XY e_XZ e_YZ e_XX-YY e_ZZ o_XY o_XZ o_YZ (sme) or P_MM (rms)")
+    g.add_argument("--site", metavar="LAT,LON", default=None, help="site latitude,longitude in degrees (east positive)")
+    g.add_argument("--mark-azimuth", type=float, default=None, metavar="DEG",
+                   help="geographic azimuth of the table's reference mark (N through E)")
+    g.add_argument("--table-sense", choices=("clockwise", "counterclockwise"), default="clockwise",
+                   help="the table's positive sense seen from above (default clockwise)")
+    g.add_argument("--readout-sign", type=int, choices=(1, -1), default=1,
+                   help="+1 when the signal grows as arm 1's round trip lengthens; -1 for a logged beat "
+                        "(ν1 − ν2)/ν (default +1)")
 
     g = s.add_argument_group("noise and drift")
     g.add_argument("--noise", choices=("white", "ar1", "flicker"), default="white", help="noise model (default white)")
@@ -118,6 +130,15 @@ def _check(args) -> None:
         raise UsageError("--temperature-coupling/--temperature-walk need --temperature K_PER_S")
     if (args.arm_length is None) != (args.wavelength is None):
         raise UsageError("give both --arm-length and --wavelength (or neither)")
+    if args.sky_model is None:
+        if args.sky is not None:
+            raise UsageError("--sky needs --sky-model sme|rms")
+    else:
+        if args.site is None or args.mark_azimuth is None:
+            raise UsageError("--sky-model needs --site LAT,LON and --mark-azimuth DEG (the sky is seen from the site)")
+        if args.signal_unit == "fringe" and args.arm_length is None:
+            raise UsageError("--sky-model with --signal-unit fringe needs --arm-length and --wavelength "
+                             "(fringes = 2L/λ × the fractional signal)")
 
 
 def run(args) -> int:
@@ -156,15 +177,53 @@ def run(args) -> int:
     if args.temperature is not None:
         channels.append(temperature(args.temperature_coupling, slope_per_s=args.temperature,
                                     walk_step=args.temperature_walk, sensor_sigma=args.aux_noise))
+    extra, site_table, app_table = _sky(args)
     df, truth = simulate_log(
-        aux=channels, rng=args.seed, n_turns=args.turns, period_s=args.period, samples_per_turn=args.per_turn,
+        aux=channels, extra=extra, rng=args.seed, n_turns=args.turns, period_s=args.period, samples_per_turn=args.per_turn,
         marks=args.marks, harmonics=harmonics, drift={"slope": args.drift_slope, "walk_step": args.drift_walk},
         noise=args.noise, sigma=args.noise_sigma, ar1_coef=args.ar1, flicker_alpha=args.flicker_alpha,
         epoch_unix=int(epoch), signal_unit=args.signal_unit, time_format="relative")
-    apparatus = None
-    if args.arm_length is not None:
+    apparatus = app_table
+    if apparatus is None and args.arm_length is not None:
         apparatus = {"arm_length_m": args.arm_length, "wavelength_m": args.wavelength, "signal": args.signal_unit}
-    log, man = write_log(out, df, truth, force=args.force, run_id=args.run_id or out.stem, apparatus=apparatus)
+    log, man = write_log(out, df, truth, force=args.force, run_id=args.run_id or out.stem, apparatus=apparatus,
+                         site=site_table)
     print(f"wrote {log} ({len(df)} readings, {args.turns:g} turns) and {man} (truth and seed "
           f"{truth.scan.seed} in [notes])")
     return 0
+
+
+def _sky(args):
+    """The sky-frame injection: ``([(label, f(times_unix, theta))], site table, apparatus table)``."""
+    if args.sky_model is None:
+        return [], None, None
+    from ..hypothesis.apparatus import Apparatus
+    from ..hypothesis.sidereal import template
+    from ..hypothesis.site import Site
+    from ..simulation.sky import manifest_tables
+
+    try:
+        lat, lon = (float(v) for v in args.site.split(","))
+    except ValueError:
+        raise UsageError(f"--site must be LAT,LON in degrees (e.g. 58.39,13.85), not {args.site!r}") from None
+    params = {}
+    for item in filter(None, (t.strip() for t in (args.sky or "").split(","))):
+        name, eq, value = item.partition("=")
+        try:
+            params[name.strip()] = float(value)
+        except ValueError:
+            raise UsageError(f"--sky takes NAME=VALUE pairs (e.g. e_XY=1e-16), not {item!r}") from None
+        if not eq:
+            raise UsageError(f"--sky takes NAME=VALUE pairs (e.g. e_XY=1e-16), not {item!r}")
+    site = Site(lat, lon, mark_azimuth_deg=args.mark_azimuth, table_sense=args.table_sense, name="simulated site")
+    app = Apparatus(args.arm_length, args.wavelength, signal=args.signal_unit, readout_sign=args.readout_sign,
+                    name="simulated apparatus")
+    template("rms" if args.sky_model == "rms" else "sme", params, site=site, apparatus=app, theta=[0.0],
+             times=[1.8e9])  # checks the parameter names at once (one-line error)
+    label = f"sky {args.sky_model}: " + ", ".join(f"{k}={v:g}" for k, v in params.items())
+
+    def signal(times, theta):
+        return template(args.sky_model, params, site=site, apparatus=app, theta=theta, times=times)
+
+    s_tab, a_tab = manifest_tables(site, app)
+    return [(label, signal)], s_tab, a_tab
