@@ -39,6 +39,32 @@ from .solvers import find_root, golden_max
 
 TILE_WIDTH = 1.0
 
+#: At ``θ = 0`` the best fit is ``θ' = 0`` for every ``x`` in a region ``[edge, x_flat]``, where
+#: therefore ``R = 1``: for the Rice law ``x_flat = √2`` (the slope of the log-likelihood in ``ν``
+#: at 0 is ``ν(x²/2 − 1)``), a region of probability ``1 − e^{−1}``; for a Gaussian mean with a
+#: boundary at 0, ``x ≤ 0``, probability 1/2.  Below that level the ordering cannot rank the
+#: acceptance region of ``θ = 0`` (every point ties) and the construction is undefined.  The
+#: anisotropic shapes have a smaller flat region, and they tend to the Rice law as ρ → 1, so the
+#: Rice bound is applied to every amplitude family.
+FLAT_LEVEL = {"gauss1d": 0.5, "rice": 1.0 - math.exp(-1.0), "aniso": 1.0 - math.exp(-1.0)}
+
+
+def check_level(key, confidence_level: float) -> None:
+    """Refuse a confidence level at which the likelihood-ratio ordering is undefined (see
+    :data:`FLAT_LEVEL`): a ValueError naming the reason and the alternatives."""
+    lim = FLAT_LEVEL[key[0]]
+    if float(confidence_level) > lim + 1e-12:
+        return
+    if key[0] == "gauss1d":
+        why = ("for a Gaussian mean μ ≥ 0 the likelihood ratio at μ = 0 is 1 for every x ≤ 0 (the best fit is "
+               "μ = 0 there), a region of probability 0.5")
+    else:
+        why = ("at A = 0 the likelihood ratio is 1 for every observed amplitude up to √2 σ (the best fit is A = 0 "
+               "there), a region of probability 1 − 1/e ≈ 0.632")
+    raise ValueError(f"the unified (Feldman–Cousins) construction is undefined at confidence_level="
+                     f"{float(confidence_level):g}: {why}, so no acceptance region can be ranked below that level; "
+                     f"use confidence_level > {lim:.3f}, or method='neyman' or 'bayes'")
+
 
 # ------------------------------------------------------------------------------- families
 
@@ -230,6 +256,7 @@ def band(key, theta, confidence_level: float, *, phases=None, refine: bool = Tru
     ``phases`` overrides the family's phase grid (tests use a much finer one); ``refine``
     applies the same local phase refinement as the cached tiles.
     """
+    check_level(key, confidence_level)
     fam = family(key)
     theta = np.atleast_1d(np.asarray(theta, dtype=float))
     grid = fam.phases if phases is None else np.asarray(phases, dtype=float)
@@ -297,6 +324,7 @@ def _refine_phases(fam, theta, x1, x2, flat, cl, rounds=(0.5, 0.25)):
 @functools.lru_cache(maxsize=4096)
 def tile(key, confidence_level: float, index: int) -> Tile:
     """The belt on ``θ ∈ [index, index + 1]`` (units of σ), cached."""
+    check_level(key, confidence_level)
     fam = family(key)
     n = int(round(TILE_WIDTH / fam.spacing))
     theta = index * TILE_WIDTH + fam.spacing * np.arange(n + 1)
@@ -343,6 +371,7 @@ def invert(key, confidence_level: float, x):
     non-monotonicity by working with the running envelopes of ``x1`` and ``x2``.  ``upper``
     is NaN where ``x`` lies below the belt (never for the amplitude families).
     """
+    check_level(key, confidence_level)
     fam = family(key)
     x = np.atleast_1d(np.asarray(x, dtype=float))
     reach = special.ndtri(0.5 + 0.5 * confidence_level) * fam.s_major + 1.0
