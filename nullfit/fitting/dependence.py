@@ -155,6 +155,11 @@ class TurnDependence(Described):
         return bool(self.checked and self.p_value is not None and self.p_value < self.level)
 
     @property
+    def positive(self) -> bool:
+        """Dependence detected with ``τ̂ > 1``: the turn scatter understates the error."""
+        return self.detected and self.tau_max is not None and self.tau_max > 1.0
+
+    @property
     def tau_max(self) -> float | None:
         return max(self.tau) if self.tau else None
 
@@ -176,7 +181,7 @@ class TurnDependence(Described):
     def calibrated(self) -> bool:
         """False when dependence was detected (or kept on request) and fewer than
         :data:`CALIBRATION_BLOCKS` independent blocks remain."""
-        if not self.detected:
+        if not self.positive:
             return True
         if self.action in ("warned", "ignored"):
             return False
@@ -298,7 +303,7 @@ def block_rule(dep: TurnDependence) -> tuple[int, int]:
     with ``τ̂ > 1``, then ``ceil(BLOCK_TAUS · τ̂)`` turns, at most ``N // MIN_BLOCKS`` (blocks of
     near-equal length, see :func:`block_edges`)."""
     n = dep.n_turns
-    if not dep.detected or dep.tau_max is None or dep.tau_max <= 1.0:
+    if not dep.positive:
         return 1, n
     b = int(math.ceil(BLOCK_TAUS * dep.tau_max))
     b = max(1, min(b, n // MIN_BLOCKS))

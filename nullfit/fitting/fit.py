@@ -285,7 +285,7 @@ def _finish(scan, ks, spec, kind, res) -> ScanFit:
 def _dependence_notes(dep, kind, notes: list) -> None:
     """Notes and warnings about the turn-to-turn dependence check (see :mod:`.dependence`)."""
     notes.append(dep.statement())
-    if not dep.detected:
+    if not dep.positive:
         return
     if dep.action == "widened":
         msg = (f"turn-to-turn dependence detected (Ljung–Box p = {dep.p_value:.2g}, τ̂ = {dep.tau_max:.3g} turns): "

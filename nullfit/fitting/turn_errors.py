@@ -115,7 +115,7 @@ def turn_scatter(coef, white_cov=None, *, rss=None, resid_dof=None, turn=None, n
     z = (b - mean) / n if influence is None else np.asarray(influence, dtype=float)
     dep = check_dependence(b, names, turn=turn)
     if block_turns is None:
-        if dependence == "warn" and dep.detected:
+        if dependence == "warn" and dep.positive:
             bt, nb, action = 1, n, "warned"
         else:
             bt, nb = block_rule(dep)
@@ -259,5 +259,5 @@ def joint_dependence(scan, ks, complete_only) -> TurnDependence:
     b = pt.harm[pt.ok]
     names = [f"{p}{k}" for k in ks for p in ("c", "s")]
     dep = check_dependence(b, names, turn=eng.seg.turn[pt.ok])
-    action = "ignored" if dep.detected else ("none" if dep.checked else "not checked")
+    action = "ignored" if dep.positive else ("none" if dep.checked else "not checked")
     return dep.with_action(action, 1, b.shape[0])
