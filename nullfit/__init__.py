@@ -48,6 +48,8 @@ _EXPORTS = {
     "ScanFit": "fitting.scanfit",
     "HarmonicEstimate": "fitting.estimate",
     "demodulate": "fitting.demodulate",
+    "fit_coupling": "fitting.coupling",
+    "CouplingFit": "fitting.coupling_result",
     "allan_deviation": "fitting.allan",
     "AllanDeviation": "fitting.allan",
     # limits

@@ -216,6 +216,13 @@ def fit_turn_scatter(scan, ks, spec, aux, complete_only, block_turns, dependence
         Mi = Q_aa - np.swapaxes(Q_ha, 1, 2) @ P
         g0 = r_a - np.einsum("sji,sj->si", Q_ha, b0)
         Msum = Mi.sum(axis=0)
+        before = np.diag(Q_aa.sum(axis=0))  # aux variance left after the per-turn drift alone
+        if not np.all(np.diag(Msum) > 1e-10 * before):
+            gone = [n for n, m, b0 in zip(eng.aux_names, np.diag(Msum), before) if not m > 1e-10 * b0]
+            raise AnalysisError(
+                f"{where(scan.source)}: auxiliary column(s) {', '.join(map(repr, gone))} vary only like the per-turn "
+                "drift and the fitted harmonics: nothing is left to fit a reading-level coefficient on; fit the "
+                "coupling at turn level (nullfit.fitting.coupling.fit_coupling) or leave the column out")
         delta, Minv, _ = solve_spd(Msum, g0.sum(axis=0))
         g = g0 - np.einsum("sij,j->si", Mi, delta)
         infl_extra = (P.mean(axis=0), Minv, g)
