@@ -267,18 +267,30 @@ class TurnDependence(Described):
         return replace(self, action=action, block_turns=int(block_turns), n_blocks=int(n_blocks))
 
 
-def check_dependence(series, names=None, *, turn=None, level: float = LEVEL) -> TurnDependence:
+def count_gaps(turn=None, time_mid=None) -> int:
+    """Gaps between consecutive fitted turns: a jump in the turn numbers, or (without them) a
+    spacing of the turn mid-times above 1.5 times their median spacing."""
+    if turn is not None and len(turn) > 1:
+        return int(np.count_nonzero(np.diff(np.asarray(turn)) > 1))
+    if time_mid is not None and len(time_mid) > 2:
+        dt = np.diff(np.asarray(time_mid, dtype=float))
+        return int(np.count_nonzero(dt > 1.5 * np.median(dt)))
+    return 0
+
+
+def check_dependence(series, names=None, *, turn=None, time_mid=None, level: float = LEVEL) -> TurnDependence:
     """Measure the turn-to-turn dependence of per-turn coefficient series ``(N, p)``.
 
-    ``turn`` (turn numbers, optional) only counts gaps in the numbering: the check runs over the
-    fitted turns in order, as if consecutive.  Columns that are constant are left out.
+    ``turn`` (turn numbers) or ``time_mid`` (turn mid-times), both optional, only count gaps
+    (:func:`count_gaps`): the check runs over the fitted turns in order, as if consecutive.
+    Columns that are constant are left out.
     """
     x = np.asarray(series, dtype=float)
     if x.ndim == 1:
         x = x[:, None]
     n, p = x.shape
     names = tuple(names) if names is not None else tuple(f"x{j}" for j in range(p))
-    gaps = 0 if turn is None or len(turn) < 2 else int(np.count_nonzero(np.diff(np.asarray(turn)) > 1))
+    gaps = count_gaps(turn, time_mid)
     if n < MIN_TURNS_CHECK:
         return TurnDependence(n, names, False, f"fewer than {MIN_TURNS_CHECK} turns ({n})", n_gaps=gaps)
     if not np.all(np.isfinite(x)):

@@ -65,7 +65,8 @@ def check_dependence_mode(dependence: str) -> str:
     return dependence
 
 
-def turn_scatter(coef, white_cov=None, *, rss=None, resid_dof=None, turn=None, names=None, influence=None,
+def turn_scatter(coef, white_cov=None, *, rss=None, resid_dof=None, turn=None, time_mid=None, names=None,
+                 influence=None,
                  block_turns: int | None = None, dependence: str = "widen", source: str = "<data>",
                  left_out: str = "") -> TurnScatter:
     """Estimate, covariance and dependence check from per-turn results.
@@ -79,8 +80,8 @@ def turn_scatter(coef, white_cov=None, *, rss=None, resid_dof=None, turn=None, n
     rss, resid_dof : arrays (N,), optional
         Each turn's residual sum of squares and residual degrees of freedom ``n_i − p``; with
         ``white_cov`` they give the χ² of the scatter.
-    turn : array (N,), optional
-        Turn numbers (only gaps in the numbering are counted).
+    turn, time_mid : arrays (N,), optional
+        Turn numbers and turn mid-times (s); they only count gaps for the dependence report.
     names : sequence of str, optional
         Names of the ``q`` columns (``"c2"`` …) for the dependence report.
     influence : array (N, r), optional
@@ -113,7 +114,7 @@ def turn_scatter(coef, white_cov=None, *, rss=None, resid_dof=None, turn=None, n
             "(joint fit, covariance from the residuals), or a longer scan")
     mean = b.mean(axis=0)
     z = (b - mean) / n if influence is None else np.asarray(influence, dtype=float)
-    dep = check_dependence(b, names, turn=turn)
+    dep = check_dependence(b, names, turn=turn, time_mid=time_mid)
     if block_turns is None:
         if dependence == "warn" and dep.positive:
             bt, nb, action = 1, n, "warned"
@@ -242,7 +243,8 @@ def fit_turn_scatter(scan, ks, spec, aux, complete_only, block_turns, dependence
         z = np.concatenate([(b - b.mean(axis=0)) / N - zd @ Pbar.T, zd], axis=1)
     names = [f"{p}{k}" for k in ks for p in ("c", "s")]
     resid_dof = eng.seg.length - (eng.n_drift + eng.n_harm)
-    ts = turn_scatter(b, pt.cov, rss=pt.rss, resid_dof=resid_dof, turn=eng.seg.turn, names=names, influence=z,
+    ts = turn_scatter(b, pt.cov, rss=pt.rss, resid_dof=resid_dof, turn=eng.seg.turn, time_mid=eng.t_mid,
+                      names=names, influence=z,
                       block_turns=block_turns, dependence=dependence, source=scan.source,
                       left_out=eng.excluded_text() if eng.excluded else "")
     cov_all = ts.cov

@@ -15,8 +15,8 @@ Schemes (as in arch's bootstrap module; only how block starts and lengths are dr
 Block length (default).  The largest of
 
 * the Politis–White rule (Politis & White 2004, with the correction of Patton, Politis &
-  White 2009) as implemented in :func:`arch.bootstrap.optimal_block_length`, applied to the
-  ``c`` and ``s`` series (the larger, rounded up);
+  White 2009) with the constants of :func:`arch.bootstrap.optimal_block_length`
+  (:func:`politis_white`), applied to the ``c`` and ``s`` series (the larger, rounded up);
 * the dependence rule of the turn errors (:mod:`nullfit.fitting.dependence`): when the
   per-turn series is dependent from turn to turn, ``⌈6 τ̂⌉`` turns (τ̂ the integrated
   autocorrelation time), at most ``N/5``;
@@ -77,14 +77,55 @@ def check_scheme(scheme: str) -> str:
     return scheme
 
 
-def politis_white_block_length(turns, scheme: str = "circular") -> tuple[int, tuple[float, float]]:
-    """Politis–White block length (via arch) for the ``c`` and ``s`` series: ``(b, (b_c, b_s))``."""
-    from arch.bootstrap import optimal_block_length
+def politis_white(x) -> tuple[float, float]:
+    """Politis–White (with the Patton–Politis–White correction) optimal block lengths of one
+    series: ``(stationary, circular)``.
 
+    The algorithm and tuning constants of :func:`arch.bootstrap.optimal_block_length` (which the
+    tests use as the reference): the first ``k_n = max(5, ⌊log10 N⌋)`` consecutive
+    autocorrelations inside ``±2 sqrt(log10(N)/N)`` set ``m``; flat-top kernel sums of the
+    autocovariances give ``G`` and the long-run variance; ``b = (2G²/D)^{1/3} N^{1/3}`` with
+    ``D = 2σ⁴`` (stationary) or ``(4/3)σ⁴`` (circular), capped at ``min(3√N, N/3)``.  Here the
+    autocovariances come from one FFT and the normalising sums of squares from a cumulative sum,
+    so the cost is O(N log N) instead of O(N^{3/2}) (8 s for 139 000 turns through arch).
+    """
+    x = np.asarray(x, dtype=float)
+    n = x.size
+    eps = x - x.mean()
+    b_max = math.ceil(min(3 * math.sqrt(n), n / 3))
+    kn = max(5, int(math.log10(n)))
+    m_max = int(math.ceil(math.sqrt(n))) + kn
+    cv = 2 * math.sqrt(math.log10(n) / n)
+    nfft = 1 << int(math.ceil(math.log2(2 * n)))
+    f = np.fft.rfft(eps, nfft)
+    cross = np.fft.irfft(f * np.conj(f), nfft)[: m_max + 1]  # Σ_t eps_t eps_{t−i}
+    acv = cross / n
+    cs = np.cumsum(eps * eps)
+    i = np.arange(m_max + 1)
+    v1 = cs[-1] - cs[i]  # Σ_{t ≥ i+1} eps_t²
+    v2 = cs[n - i - 2]  # Σ_{t ≤ n−i−2} eps_t²
+    with np.errstate(invalid="ignore", divide="ignore"):
+        inside = np.abs(cross) / np.sqrt(v1 * v2) < cv
+    run = np.concatenate([[0], np.cumsum(inside)])
+    ends = np.arange(kn, m_max + 1)  # window inside[e − kn : e] all True
+    ok = run[ends] - run[ends - kn] == kn
+    m = 2 * max(int(ends[ok.argmax()]) - kn, 1) if ok.any() else m_max
+    m = min(m, m_max)
+    k = np.arange(1, m + 1)
+    lam = np.where(k / m <= 0.5, 1.0, 2.0 * (1.0 - k / m))
+    g = float(np.sum(2 * lam * k * acv[1:m + 1]))
+    lr = float(acv[0] + np.sum(2 * lam * acv[1:m + 1]))
+    b_sb = ((2 * g ** 2) / (2 * lr ** 2)) ** (1 / 3) * n ** (1 / 3)
+    b_cb = ((2 * g ** 2) / (4 / 3 * lr ** 2)) ** (1 / 3) * n ** (1 / 3)
+    return min(b_sb, b_max), min(b_cb, b_max)
+
+
+def politis_white_block_length(turns, scheme: str = "circular") -> tuple[int, tuple[float, float]]:
+    """Politis–White block length for the ``c`` and ``s`` series: ``(b, (b_c, b_s))`` (the larger,
+    rounded up, at most ``N/2``; see :func:`politis_white`)."""
     x = np.asarray(turns, dtype=float)
-    col = "stationary" if scheme == "stationary" else "circular"
-    table = optimal_block_length(x)
-    raw = tuple(float(v) for v in table[col].to_numpy())
+    j = 0 if scheme == "stationary" else 1
+    raw = tuple(float(politis_white(x[:, c])[j]) for c in range(x.shape[1]))
     b = int(math.ceil(max(raw)))
     return max(1, min(b, x.shape[0] // 2)), raw
 
@@ -160,7 +201,7 @@ def default_block_length(x, scheme: str = "circular", min_block: int | None = No
     b_cap = int(math.ceil(n / MAX_BLOCKS))
     b_fit = int(min_block or 1)
     b = max(b_pw, b_dep, b_cap, min(b_fit, n // 2))
-    why = [f"Politis–White {b_pw} (arch.bootstrap.optimal_block_length; c: {raw[0]:.3g}, s: {raw[1]:.3g})"]
+    why = [f"Politis–White {b_pw} (c: {raw[0]:.3g}, s: {raw[1]:.3g})"]
     if dep.detected and b_dep > 1:
         why.append(f"turn-to-turn dependence {b_dep} (6 τ̂, τ̂ = {dep.tau_max:.3g} turns, Ljung–Box p = "
                    f"{dep.p_value:.2g})")

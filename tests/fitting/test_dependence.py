@@ -128,3 +128,12 @@ def test_gaps_are_counted_and_the_report_renders():
     d = dep.to_dict()
     assert d["detected"] and set(d["lag1_autocorrelation"]) == {"c2", "s2"} and d["ljung_box_lags"] == 10
     assert "Ljung–Box" in dep.statement() and "Turn-to-turn dependence" in str(dep)
+
+
+def test_gaps_from_mid_times_when_turn_numbers_are_missing():
+    from nullfit.fitting.dependence import count_gaps
+
+    t = np.r_[np.arange(30) * 40.0, 3 * 86400 + np.arange(30) * 40.0]  # a 3-day jump in a 40 s/turn log
+    assert count_gaps(time_mid=t) == 1
+    assert count_gaps(turn=np.r_[0:30, 31:61], time_mid=t) == 1
+    assert count_gaps() == 0

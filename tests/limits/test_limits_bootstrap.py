@@ -84,6 +84,22 @@ def test_politis_white_grows_with_dependence():
     assert b_ar == math.ceil(ref.max())
 
 
+@pytest.mark.parametrize("n,phi", [(50, 0.0), (300, 0.3), (2000, 0.9), (20000, 0.5), (20000, 0.0)])
+def test_politis_white_matches_arch(n, phi):
+    # arch.bootstrap.optimal_block_length as the independent reference (its loop over lags; ours
+    # uses one FFT): both block lengths agree to rounding.
+    from arch.bootstrap import optimal_block_length
+
+    from nullfit.limits.bootstrap import politis_white
+
+    x = _ar1(np.random.default_rng(n + int(10 * phi)), n, phi)
+    ref = optimal_block_length(x)
+    for j in range(2):
+        sb, cb = politis_white(x[:, j])
+        assert sb == pytest.approx(ref["stationary"].iloc[j], rel=1e-8)
+        assert cb == pytest.approx(ref["circular"].iloc[j], rel=1e-8)
+
+
 def test_progress_bar_when_asked(capsys):
     x = np.random.default_rng(0).standard_normal((100, 2))
     block_means(x, 5, "circular", 500, np.random.default_rng(1), progress=True)
