@@ -24,7 +24,7 @@ Block length (default).  The largest of
 * ``⌈N / MAX_BLOCKS⌉``: at most :data:`MAX_BLOCKS` blocks per replicate, so that a replicate
   costs O(blocks), never O(turns), on long series.  For independent turns any block length is
   valid once the bias below is removed; the price of the cap is a bootstrap variance that is
-  itself noisier, by ``≈ sqrt(8b/3N)`` relative (1.8 % of σ² at the cap).
+  itself noisier, by ``≈ sqrt(8b/3N)`` relative (3.7 % of σ², 1.8 % of σ, at the cap).
 
 Politis–White is MSE-optimal for the variance of a weakly dependent series, but with strong
 dependence it is far too short for coverage (AR(1) ρ = 0.95: 34 turns for N = 400, where the
@@ -49,8 +49,8 @@ At large ``A`` it tends to nominal, below it when few independent blocks remain 
 of a bootstrap with ``n`` effective blocks ignores the uncertainty of its own scale, as a normal
 quantile used in place of a Student one).  Measured coverage at 95 %
 (``tests/limits/test_limits_coverage.py``, ``docs/limits.md``): AR(1) ρ = 0.5, 400 turns:
-1.00 for ``A ≤ σ``, ≥ 0.99 at 2σ, 0.96–0.97 at 4σ; AR(1) ρ = 0.95 (τ = 39 turns): ≥ 0.92 at
-400 turns and ≥ 0.94 at 1600 turns for A up to 8σ.  ``σ`` is the standard deviation of the
+1.00 for ``A ≤ σ``, ≥ 0.99 at 2σ, 0.96–0.97 at 4σ; AR(1) ρ = 0.95 (τ = 39 turns): 1.00 at
+``A = 0``, 0.94 at 4σ and 0.91 at 8σ with 400 turns, 0.96 and 0.94 with 1600 turns.  ``σ`` is the standard deviation of the
 mean coefficient.  BCa and jackknife corrections assume independent resampling and are not
 offered for block schemes.
 """
@@ -264,8 +264,8 @@ def bootstrap(c: float, s: float, turns, confidence_level: float, rng, *, scheme
                  f"{replicates} replicates; percentile upper limit of |(c, s) + m* − m̄|")
     notes.append("known bias: the percentile limit is biased upward at small A (Â is biased up and the "
                  "bootstrap adds that bias again), so it over-covers for A ≲ 2σ and always covers at A = 0; at large "
-                 "A it falls below nominal when few independent blocks remain (measured: 0.92–0.93 at 95 % for "
-                 "5 blocks of strongly dependent turns)")
+                 "A it falls below nominal when few independent blocks remain (measured at 95 %: 0.91–0.94 for "
+                 "about 5 blocks of strongly dependent turns)")
     return dict(lower=0.0, upper=upper, cov=cov, block_length=b, replicates=replicates, scheme=scheme,
                 notes=tuple(notes), n_turns=n)
 

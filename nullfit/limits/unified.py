@@ -40,8 +40,8 @@ Estimated covariance (``dof``)
     relative, tested).  Measured coverage at 95 % (``tests/limits/test_limits_coverage.py``,
     ``docs/limits.md``; 4000 draws per case; covariance of the mean diag(1.8, 0.2),
     diag(1.92, 0.08) and 25:1; 5, 10, 20, 200 turns; signal on either axis, A = 0–4σ): never
-    significantly below nominal; on the major axis 0.946–0.961 at 200 turns, conservative with
-    few turns (0.98–0.99 at 5 turns).  The former construction (an isotropic bound
+    significantly below nominal; on the major axis 0.944–0.957 at 200 turns and 0.951–0.964 at
+    20 turns, conservative with very few turns (0.98–0.99 at 5 turns).  The former construction (an isotropic bound
     ``c·λ_max``) under-covered on the major axis of elongated covariances (0.928–0.940) because
     the Rice law's perpendicular spread shifts the belt upward by ``(λ_max − λ_min)/(2A)``.
 
