@@ -74,7 +74,8 @@ def turn_scatter(coef, white_cov=None, *, rss=None, resid_dof=None, turn=None, t
     Parameters
     ----------
     coef : array (N, q)
-        Per-turn harmonic coefficients ``c_k1, s_k1, c_k2, …`` in time order.
+        Per-turn harmonic coefficients ``c_k1, s_k1, c_k2, …`` in time order (finite: turns that
+        could not be solved are left out first).
     white_cov : array (N, q, q), optional
         Each turn's white-noise covariance of ``coef`` (``σ̂_i² (X_iᵀX_i)⁻¹``, harmonic block).
     rss, resid_dof : arrays (N,), optional
@@ -106,6 +107,8 @@ def turn_scatter(coef, white_cov=None, *, rss=None, resid_dof=None, turn=None, t
     if b.ndim != 2:
         raise ValueError(f"coef must be an (N, q) array of per-turn coefficients, got shape {b.shape}")
     n, q = b.shape
+    if not np.all(np.isfinite(b)):
+        raise ValueError("coef has non-finite rows: leave out the turns that could not be solved before turn_scatter")
     left = f" (left out: {left_out})" if left_out else ""
     if n < MIN_TURNS:
         raise AnalysisError(

@@ -96,6 +96,8 @@ def test_fewer_than_three_turns_or_blocks_are_refused():
         fit_scan(wander_scan(rng, 8, rho=0.0), errors="blocks:4")
     with pytest.raises(AnalysisError, match="at least 3 turns"):
         turn_scatter(np.zeros((2, 2)))
+    with pytest.raises(ValueError, match="non-finite"):
+        turn_scatter(np.array([[0.0, 1.0], [np.nan, 1.0], [1.0, 2.0]]))
 
 
 def test_dependence_warn_keeps_the_turn_scatter_and_flags_every_limit():
