@@ -301,7 +301,8 @@ def _dependence_notes(dep, kind, notes: list) -> None:
         msg = (f"per-turn coefficients are dependent from turn to turn (Ljung–Box p = {dep.p_value:.2g}, "
                f"τ̂ = {dep.tau_max:.3g} turns): errors={kind!r} does not cover that; use errors='turns'")
     else:
-        return
-    warnings.warn(msg, FitWarning, stacklevel=4)
+        msg = None
+    if msg:
+        warnings.warn(msg, FitWarning, stacklevel=4)
     if dep.caveat:
         notes.append(dep.caveat)
