@@ -209,7 +209,11 @@ def default_block_length(x, scheme: str = "circular", min_block: int | None = No
         why.append(f"the estimate's own blocks {b_fit}")
     if b_cap > 1:
         why.append(f"at most {MAX_BLOCKS} blocks {b_cap}")
-    return b, [f"block length {b} turns, the largest of: " + "; ".join(why)]
+    notes = [f"block length {b} turns, the largest of: " + "; ".join(why)]
+    caveat = dep.with_action("widened", b, n // b).caveat
+    if caveat:
+        notes.append(caveat)
+    return b, notes
 
 
 def bootstrap(c: float, s: float, turns, confidence_level: float, rng, *, scheme: str = "circular",
@@ -282,7 +286,8 @@ def limit(est, confidence_level: float, *, rng=None, scheme: str = "circular", b
                     replicates=replicates, progress=progress, interval=interval, min_block=est.block_turns)
     bcov = np.asarray(out["cov"], dtype=float)
     bsig = math.sqrt(0.5 * np.trace(bcov))
-    notes = out["notes"] + (f"bootstrap σ = {bsig:.4g} (supplied covariance: σ = {est.sigma:.4g})",) + est.caveats
+    notes = out["notes"] + (f"bootstrap σ = {bsig:.4g} (supplied covariance: σ = {est.sigma:.4g})",)
+    notes += tuple(c for c in est.caveats if c not in notes)
     return Limit(method="bootstrap", confidence_level=float(confidence_level), lower=0.0, upper=out["upper"],
                  cov=bcov, sigma=bsig, sigma_label="sqrt(trace(bootstrap cov)/2)", block_length=out["block_length"],
                  replicates=out["replicates"], scheme=out["scheme"], seed=seed, notes=notes, **estimate_fields(est))

@@ -162,3 +162,15 @@ def test_bootstrap_end_to_end_on_simulated_scans():
     assert binomtest(k, n_scans, 0.93, alternative="less").pvalue > 0.01
     # and the limit is an upper bound of the estimate itself
     assert all(r.upper > r.estimate for r in results)
+
+
+def test_bare_turns_with_strong_dependence_carry_the_calibration_caveat():
+    # no fit behind the series: the bootstrap's own dependence check finds few independent blocks
+    x = _ar1(np.random.default_rng(12), 400, 0.95) * 0.01
+    lim = amplitude_limit(*x.mean(axis=0), np.cov(x.T) / 400, method="bootstrap", turns=x, rng=1, replicates=500)
+    assert any("cannot be calibrated" in n for n in lim.notes)
+    assert lim.block_length > 20  # ⌈6 τ̂⌉, far above Politis–White
+    white = np.random.default_rng(13).standard_normal((400, 2)) * 0.01
+    lim = amplitude_limit(*white.mean(axis=0), np.cov(white.T) / 400, method="bootstrap", turns=white, rng=1,
+                          replicates=500)
+    assert not any("cannot be calibrated" in n for n in lim.notes)
