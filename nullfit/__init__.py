@@ -51,6 +51,8 @@ _EXPORTS = {
     "fit_stream": "fitting.stream",
     "demodulate_stream": "fitting.stream",
     "fit_path": "fitting.stream",
+    "fit_coupling": "fitting.coupling",
+    "CouplingFit": "fitting.coupling_result",
     "allan_deviation": "fitting.allan",
     "AllanDeviation": "fitting.allan",
     # limits

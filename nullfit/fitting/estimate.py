@@ -27,6 +27,10 @@ class HarmonicEstimate(Described):
     scatter of turns or blocks (``N − 1``), ``None`` when it is treated as known.  ``turns`` holds
     the per-turn ``(c, s)`` pairs ``(N, 2)`` the estimate came from, when there are any (the block
     bootstrap resamples them).  ``k`` may be ``None`` for a bare ``(c, s)`` pair (no phase).
+    ``caveats`` are statements every limit built on the estimate repeats in its notes (e.g. that
+    its coverage cannot be calibrated, or that it was corrected for a coupled channel);
+    ``block_turns`` is the number of consecutive turns per block behind ``cov`` (1 = turn
+    scatter; the bootstrap uses it as the shortest block it resamples).
     """
 
     k: int | None
@@ -37,6 +41,8 @@ class HarmonicEstimate(Described):
     unit: str = ""
     method: str = ""
     turns: np.ndarray | None = field(default=None, repr=False)
+    caveats: tuple[str, ...] = field(default=(), repr=False)
+    block_turns: int | None = None
 
     def __post_init__(self):
         cov = np.array(self.cov, dtype=float)
@@ -54,6 +60,9 @@ class HarmonicEstimate(Described):
                 raise ValueError(f"turns must be an (N, 2) array of per-turn (c, s), got shape {t.shape}")
             t.setflags(write=False)
             object.__setattr__(self, "turns", t)
+        object.__setattr__(self, "caveats", tuple(str(c) for c in self.caveats))
+        if self.block_turns is not None:
+            object.__setattr__(self, "block_turns", int(self.block_turns))
 
     @property
     def sigma_c(self) -> float:
@@ -173,8 +182,8 @@ class HarmonicEstimate(Described):
 
     def notes(self) -> tuple[str, ...]:
         if not self.near_zero:
-            return ()
-        return (f"A{self.k or ''} is only {self.snr:.2g} σ from zero: the naive amplitude ± σ is biased upward "
+            return self.caveats
+        return self.caveats + (f"A{self.k or ''} is only {self.snr:.2g} σ from zero: the naive amplitude ± σ is biased upward "
                 "(Rice distribution) and the phase is ill-defined; quote an upper limit "
                 "(nullfit.upper_limit) instead.",)
 
@@ -194,7 +203,8 @@ class HarmonicEstimate(Described):
                 "peak_to_peak": self.peak_to_peak, "phase_deg": self.phase_deg,
                 "sigma_phase_deg": self.sigma_phase_deg, "p_value_zero": self.p_value_zero,
                 "dof": self.dof, "n_turns": None if self.turns is None else int(self.turns.shape[0]),
-                "near_zero": self.near_zero, "unit": self.unit}
+                "near_zero": self.near_zero, "unit": self.unit, "method": self.method,
+                "block_turns": self.block_turns, "caveats": list(self.caveats)}
 
 
 def region_scale(confidence_level: float, dof=None, region: str = "chi2") -> float:

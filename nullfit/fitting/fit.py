@@ -18,18 +18,29 @@ Errors (``errors=``)
         noise that is correlated over less than a turn, but the covariance rests on only
         ``N − 1`` degrees of freedom (``ScanFit.dof``): intervals then use Student-t
         (one coefficient) and Hotelling's T² (cos and sin jointly), and the fit warns below
-        10 turns.  Requires per-turn drift.
+        10 turns.  At least 3 turns are needed.  Requires per-turn drift.
+
+        The per-turn series is checked for turn-to-turn dependence (lag-1 autocorrelation,
+        Ljung–Box test, integrated autocorrelation time τ̂; :mod:`nullfit.fitting.dependence`,
+        ``ScanFit.dependence``).  When dependence is detected the scatter is taken over blocks
+        of ``⌈6 τ̂⌉`` consecutive turns (at least 5 blocks; ``dof`` = blocks − 1) and the fit
+        warns (``dependence="widen"``, the default); ``dependence="warn"`` keeps the turn
+        scatter and marks every result built on it as not calibrated.  Independent turns are
+        not affected unless the test rejects by chance (5 %), and batch means of independent
+        turns remain exactly calibrated.
     ``"blocks"`` (``block_turns=B``)
         As ``"turns"``, but the scatter is that of the means of consecutive blocks of ``B``
         turns (``dof`` = number of blocks − 1): use it when the noise is correlated over
-        more than a turn.
+        more than a turn.  The dependence check is still reported.
     ``"hac"``
         Joint least-squares fit with a Newey–West covariance: Bartlett kernel, lag ``L`` chosen
         by the Newey–West (1994) rule of thumb ``L = floor(4 (n/100)^(2/9))`` unless
         ``hac_lags`` is given, and the small-sample factor ``n/(n − p)`` (``p`` counts every
         fitted parameter, including the per-turn drift terms).  This is the definition of
         statsmodels' ``OLS(...).fit(cov_type="HAC", cov_kwds={"maxlags": L,
-        "use_correction": True})``; ``tests/test_fit_hac.py`` checks it to 1e-8.
+        "use_correction": True})``; ``tests/test_fit_hac.py`` checks it to 1e-8.  The lag
+        covers readings, not turns: the turn-to-turn dependence check runs on a per-turn
+        demodulation as well, and a detected dependence is warned about (use ``"turns"``).
     ``"ols"``
         Joint fit, white-noise covariance ``σ̂² (XᵀX)⁻¹`` with ``σ̂² = RSS/(n − p)``.  It
         *under-covers* whenever the noise is correlated or drift is left over — shown by
@@ -59,7 +70,7 @@ from .design import check_harmonics, check_knot_spacing, check_separable, harmon
 from .estimate import RICE_SNR
 from .joint import fit_joint
 from .scanfit import ScanFit
-from .turn_errors import fit_turn_scatter
+from .turn_errors import check_dependence_mode, fit_turn_scatter, joint_dependence
 
 #: Warn when the covariance rests on fewer independent turns (or blocks) than this.
 FEW_TURNS = 10
@@ -101,7 +112,7 @@ def parse_errors(errors: str = "turns", *, hac_lags=None, block_turns=None):
 
 def fit_scan(scan, *, harmonics=(1, 2), drift="per-turn", errors="turns", degree: int = 3,
              knot_turns: float = 2.0, aux=None, hac_lags: int | None = None, block_turns: int | None = None,
-             complete_only: bool = True) -> ScanFit:
+             complete_only: bool = True, dependence: str = "widen") -> ScanFit:
     """Fit drift + harmonics to a scan and estimate their covariance.
 
     Parameters
@@ -125,6 +136,10 @@ def fit_scan(scan, *, harmonics=(1, 2), drift="per-turn", errors="turns", degree
         Bartlett lag for ``errors="hac"`` (default: Newey–West rule, see module docstring).
     block_turns : int, optional
         Turns per block for ``errors="blocks"``.
+    dependence : {"widen", "warn"}
+        What ``errors="turns"`` does when the per-turn coefficients are dependent from turn to
+        turn: widen to blocks (default) or keep the turn scatter, warn, and mark the results as
+        not calibrated.
     complete_only : bool
         Leave partial turns out (counted, never silently).  With ``False`` they enter the fit;
         with turn/block errors each partial turn then weighs as much as a complete one in the
@@ -137,14 +152,15 @@ def fit_scan(scan, *, harmonics=(1, 2), drift="per-turn", errors="turns", degree
     Raises
     ------
     AnalysisError
-        When the angle coverage cannot separate the requested harmonics, or no usable turn
-        is left.
+        When the angle coverage cannot separate the requested harmonics, no usable turn is
+        left, or turn/block errors have fewer than 3 turns (blocks) to scatter.
     ValueError
         For unknown options, or turn/block errors combined with a non-per-turn drift.
     """
     ks = check_harmonics(harmonics)
     spec = parse_drift(drift, degree=degree, knot_turns=knot_turns)
     kind, hac_lags, block_turns = parse_errors(errors, hac_lags=hac_lags, block_turns=block_turns)
+    check_dependence_mode(dependence)
     if isinstance(aux, str):
         aux = (aux,)
     aux = tuple(aux or ())
@@ -155,16 +171,22 @@ def fit_scan(scan, *, harmonics=(1, 2), drift="per-turn", errors="turns", degree
     if spec.kind == "spline":
         check_knot_spacing(spec.knot_turns, ks, stacklevel=3)
     if kind in ("turns", "blocks"):
-        res = fit_turn_scatter(scan, ks, spec, aux, complete_only, block_turns if kind == "blocks" else 1)
+        res = fit_turn_scatter(scan, ks, spec, aux, complete_only, block_turns if kind == "blocks" else None,
+                               dependence)
     else:
         res = fit_joint(scan, ks, spec, aux, complete_only, kind, hac_lags)
+        res["dependence"] = joint_dependence(scan, ks, complete_only)
     res["complete_only"] = bool(complete_only)
     res["hac_lags_given"] = hac_lags is not None
-    return _finish(scan, ks, spec, kind, res)
+    return finish_fit(scan, ks, spec, kind, res)
 
 
 # ---------------------------------------------------------------------------- assembling the result
-def _finish(scan, ks, spec, kind, res) -> ScanFit:
+def finish_fit(scan, ks, spec, kind, res) -> ScanFit:
+    """The `ScanFit` from an estimator's results ``res`` (shared by the in-memory fit and the
+    streamed fit): notes, settings, descriptions.  ``res['eng']`` is the engine (or any object with
+    its bookkeeping: ``excluded``, ``excluded_text()``, ``seg.n``, ``n_rows``, ``excluded_rows``,
+    ``excluded_turns``, ``aux_names``, ``n_aux``); ``scan`` gives ``dropped``, ``unit``, ``source``."""
     eng = res["eng"]
     notes: list[str] = []
     excluded = {why: {"turns": t, "rows": r} for why, (t, r) in eng.excluded.items()}
@@ -175,7 +197,13 @@ def _finish(scan, ks, spec, kind, res) -> ScanFit:
     lags = res.get("hac_lags")
     settings: dict[str, Any] = {"drift": spec.label, "drift_description": spec.description,
                                 "errors": kind, "complete_only": res["complete_only"], "aux": list(eng.aux_names)}
-    if kind == "turns":
+    dep = res.get("dependence")
+    if kind == "turns" and res["block_turns"] > 1:
+        nb, B, N = res["n_blocks"], res["block_turns"], eng.seg.n
+        desc = (f"scatter of {N} per-turn coefficients taken over {nb} blocks of ≈{B} turns because the turns "
+                f"are dependent (estimate = unweighted mean of the turns; {nb - 1} dof; Student-t / Hotelling T²)")
+        settings["block_turns"] = B
+    elif kind == "turns":
         N = eng.seg.n
         desc = (f"scatter of {N} per-turn coefficients (estimate = unweighted mean of the turns; "
                 f"covariance = sample covariance / N on {N - 1} dof; Student-t / Hotelling T²)")
@@ -195,9 +223,17 @@ def _finish(scan, ks, spec, kind, res) -> ScanFit:
     settings["errors_description"] = desc
     if res.get("n_params") is not None:
         settings["n_params"] = res["n_params"]
+    if dep is not None:
+        settings["dependence"] = "widen" if kind == "turns" and dep.action != "warned" else dep.action
+        _dependence_notes(dep, kind, notes)
+    if res.get("chi2") is not None:
+        settings["chi2_reference"] = (
+            "per-turn coefficients about their weighted mean, weighted by the pooled within-turn white-noise "
+            f"covariance (σ̃² = Σ RSS/(ν − 2), ν = {res['chi2_resid_dof']}): mean 1 when within-turn white noise "
+            "explains the turn-to-turn scatter; p-value from F(dof, ν)")
     if kind in ("turns", "blocks"):
         nu = res["cov_dof"]
-        units = "turns" if kind == "turns" else "blocks"
+        units = "turns" if kind == "turns" and res["block_turns"] == 1 else "blocks"
         notes.append(f"covariance estimated from {nu + 1} {units}: only {nu} degrees of freedom; intervals and "
                      "tests use Student-t (one coefficient) and Hotelling's T² (cos and sin jointly)")
         if nu + 1 < FEW_TURNS:
@@ -245,5 +281,32 @@ def _finish(scan, ks, spec, kind, res) -> ScanFit:
         settings=settings, residual_rms=float(math.sqrt(res["rss"] / n_used)), chi2=res["chi2"],
         chi2_dof_n=res["chi2_n"], residuals=resid, per_turn=res["per_turn"], aux_names=eng.aux_names,
         aux_coef=res["aux_coef"], aux_cov=res["aux_cov"], variance_inflation=vif, condition_number=res.get("cond"),
-        hac_lags=lags, block_turns=res.get("block_turns") if kind == "blocks" else None,
+        hac_lags=lags, block_turns=res.get("block_turns") if kind in ("turns", "blocks") else None,
+        dependence=dep, chi2_p=res.get("chi2_p"),
         unit=scan.unit, source=scan.source, excluded=excluded, notes=tuple(notes))
+
+
+def _dependence_notes(dep, kind, notes: list) -> None:
+    """Notes and warnings about the turn-to-turn dependence check (see :mod:`.dependence`)."""
+    notes.append(dep.statement())
+    if not dep.positive:
+        return
+    if dep.action == "widened":
+        msg = (f"turn-to-turn dependence detected (Ljung–Box p = {dep.p_value:.2g}, τ̂ = {dep.tau_max:.3g} turns): "
+               f"errors widened to {dep.n_blocks} blocks of ≈{dep.block_turns} turns ({dep.n_blocks - 1} dof)")
+    elif dep.action == "warned":
+        msg = (f"TURN-TO-TURN DEPENDENCE DETECTED (Ljung–Box p = {dep.p_value:.2g}, τ̂ = {dep.tau_max:.3g} turns) "
+               "and the turn scatter kept (dependence='warn'): σ is too small by about "
+               f"√τ̂ ≈ {max(dep.tau_max, 1.0) ** 0.5:.2g}; use the default dependence='widen'")
+    elif dep.action == "given" and dep.block_turns < dep.suggested_block_turns:
+        msg = (f"turn-to-turn dependence detected (τ̂ = {dep.tau_max:.3g} turns): blocks of {dep.block_turns} turns "
+               f"may be too short (the check suggests {dep.suggested_block_turns})")
+    elif kind in ("hac", "ols"):
+        msg = (f"per-turn coefficients are dependent from turn to turn (Ljung–Box p = {dep.p_value:.2g}, "
+               f"τ̂ = {dep.tau_max:.3g} turns): errors={kind!r} does not cover that; use errors='turns'")
+    else:
+        msg = None
+    if msg:
+        warnings.warn(msg, FitWarning, stacklevel=4)
+    if dep.caveat:
+        notes.append(dep.caveat)

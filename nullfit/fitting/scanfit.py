@@ -22,6 +22,9 @@ class ScanFit(Described):
     ``dof`` is the number of degrees of freedom behind the covariance for turn/block
     errors (``None`` for the asymptotic HAC/OLS covariances).  ``residuals`` (``"ols"``,
     ``"hac"``) are aligned with the scan's rows, NaN where a row was not fitted.
+    ``dependence`` is the turn-to-turn dependence check of the per-turn coefficients
+    (:class:`nullfit.fitting.dependence.TurnDependence`) and what the errors did about it;
+    ``block_turns`` the turns per block behind the covariance (1 = plain turn scatter).
     """
 
     harmonics: tuple[int, ...]
@@ -53,6 +56,8 @@ class ScanFit(Described):
     source: str = "<data>"
     excluded: Mapping[str, Any] = field(default_factory=dict, repr=False)
     notes: tuple[str, ...] = field(default=(), repr=False)
+    dependence: Any = field(default=None, repr=False)
+    chi2_p: float | None = None
 
     # ------------------------------------------------------------------ access
     @property
@@ -69,11 +74,12 @@ class ScanFit(Described):
 
     @property
     def chi2_dof(self) -> float | None:
-        """χ²/dof of the per-turn coefficients about their mean, each turn weighted by its own
-        white-noise covariance (turn/block errors): ≈ 1 when within-turn white noise explains
-        the turn-to-turn scatter, > 1 when noise is correlated or the signal varies from turn to
-        turn.  ``None`` for ``"hac"``/``"ols"`` (σ̂ comes from the residuals themselves, so
-        the ratio would be 1 by construction)."""
+        """χ²/dof of the per-turn coefficients about their weighted mean, weighted by the pooled
+        within-turn white-noise covariance (turn/block errors; see
+        :func:`nullfit.fitting.turn_errors.scatter_chi2`): its mean is exactly 1 for white noise at
+        any number of readings per turn; > 1 when noise is correlated beyond white or the signal
+        varies from turn to turn (``chi2_p`` is the p-value).  ``None`` for ``"hac"``/``"ols"``
+        (σ̂ comes from the residuals themselves, so the ratio would be 1 by construction)."""
         if self.chi2 is None or not self.chi2_dof_n:
             return None
         return self.chi2 / self.chi2_dof_n
@@ -96,7 +102,13 @@ class ScanFit(Described):
         if self.per_turn is not None and f"c{k}" in self.per_turn.columns:
             turns = self.per_turn[[f"c{k}", f"s{k}"]].to_numpy(dtype=float)
         return HarmonicEstimate(k, float(self.coef[2 * j]), float(self.coef[2 * j + 1]), self.cov[sl, sl], self.dof,
-                                self.unit, self.errors_description, turns)
+                                self.unit, self.errors_description, turns, self.caveats, self.block_turns)
+
+    @property
+    def caveats(self) -> tuple[str, ...]:
+        """Statements every limit built on this fit must carry (e.g. too few independent blocks)."""
+        dep = self.dependence
+        return (dep.caveat,) if dep is not None and dep.caveat else ()
 
     # ------------------------------------------------------------------ rendering
     def summary(self) -> Summary:
@@ -112,8 +124,13 @@ class ScanFit(Described):
         ]
         if self.dof is not None:
             rows.append(("covariance degrees of freedom", self.dof, ""))
+        if self.block_turns is not None and self.block_turns > 1:
+            rows.append(("turns per block behind the covariance", self.block_turns, ""))
+        if self.dependence is not None:
+            rows.append(("turn-to-turn dependence", self.dependence.statement(), ""))
         if self.chi2_dof is not None:
-            rows.append(("χ²/dof of per-turn scatter", self.chi2_dof, f"({self.chi2_dof_n} dof)"))
+            rows.append(("χ²/dof of per-turn scatter (1 = within-turn white noise)", self.chi2_dof,
+                         f"({self.chi2_dof_n} dof, p = {fmt(self.chi2_p, 3)})"))
         rows.append(("residual rms", self.residual_rms, u))
         for name, c, s in zip(self.aux_names, self.aux_coef if self.aux_coef is not None else (),
                               np.sqrt(np.diag(self.aux_cov)) if self.aux_cov is not None else ()):
@@ -134,6 +151,10 @@ class ScanFit(Described):
             "errors": self.errors, "errors_description": self.errors_description,
             "dof": self.dof, "hac_lags": self.hac_lags, "block_turns": self.block_turns,
             "residual_rms": self.residual_rms, "chi2": self.chi2, "chi2_dof_n": self.chi2_dof_n,
+            "chi2_dof": self.chi2_dof, "chi2_p": self.chi2_p,
+            "chi2_reference": self.settings.get("chi2_reference"),
+            "dependence": None if self.dependence is None else self.dependence.to_dict(),
+            "caveats": list(self.caveats),
             "param_names": list(self.param_names), "coef": np.asarray(self.coef).tolist(),
             "cov": np.asarray(self.cov).tolist(),
             "harmonics": harms,

@@ -30,22 +30,19 @@ smaller logs into memory.
 from __future__ import annotations
 
 import dataclasses
-import math
 import sys
-import warnings
 from pathlib import Path
-from typing import Any
+from types import SimpleNamespace
 
 import numpy as np
 
-from ..core.errors import AnalysisError, FitWarning, where
+from ..core.errors import AnalysisError, where
 from .design import check_harmonics, check_separable_sums, parse_drift
 from .engine import turn_frame
-from .estimate import RICE_SNR
-from .fit import FEW_TURNS, parse_errors
+from .fit import finish_fit, parse_errors
 from .kernel import TurnKernel
-from .linalg import stacked_inverse
 from .scanfit import ScanFit
+from .turn_errors import turn_scatter
 from .segments import Segments
 
 #: ``fit_path(..., stream="auto")`` streams Parquet logs of at least this many bytes.
@@ -192,6 +189,18 @@ class _Used:
     def excluded_text(self) -> str:
         return "; ".join(f"{n} {why} ({r} rows)" for why, (n, r) in self.excluded.items())
 
+    # the engine's bookkeeping, as nullfit.fitting.fit.finish_fit reads it
+    aux_names: tuple = ()
+    n_aux = 0
+
+    @property
+    def seg(self):
+        return SimpleNamespace(n=int(self.turns.turn.size))
+
+    @property
+    def n_rows(self) -> int:
+        return int(self.turns.n.sum())
+
     def drop(self, bad: np.ndarray, why: str) -> None:
         if not bad.any():
             return
@@ -249,7 +258,7 @@ def demodulate_stream(stream, *, harmonics=(1, 2), drift="per-turn", complete_on
 
 
 def fit_stream(stream, *, harmonics=(1, 2), drift="per-turn", errors="turns", block_turns: int | None = None,
-               complete_only: bool = True, aux=None, progress=None) -> ScanFit:
+               complete_only: bool = True, aux=None, progress=None, dependence: str = "widen") -> ScanFit:
     """:func:`nullfit.fit_scan` of a streamed log, for per-turn drift with turn or block errors.
 
     Parameters are those of ``fit_scan``; ``progress`` shows a tqdm bar over the readings
@@ -273,91 +282,17 @@ def fit_stream(stream, *, harmonics=(1, 2), drift="per-turn", errors="turns", bl
     nd, nh = spec.degree + 1, 2 * len(ks)
     used = _pass(stream, ks, spec, complete_only, nd + nh + 1, progress)
     used.drop(~used.turns.ok, "turns whose per-turn system is singular")
-    B = block_turns if kind == "blocks" else 1
-    sc = turn_scatter(used.turns.coef[:, nd:], used.turns.cov, B, source=stream.source,
-                      left=used.excluded_text() if used.excluded else "")
-    return _scan_fit(stream, ks, spec, kind, used, sc, B, complete_only, _frame(used, stream, ks, spec.degree))
-
-
-def turn_scatter(b, cov, block_turns: int = 1, *, source=None, left: str = "") -> dict:
-    """The turn-scatter step from per-turn arrays: mean of the per-turn coefficients ``b``
-    ``(N, 2K)``, covariance from the scatter of blocks of ``block_turns`` turns, and the χ² of the
-    turns about their mean with their white-noise covariances ``cov`` ``(N, 2K, 2K)``.
-
-    An adapter: the same arithmetic as ``nullfit.fitting.turn_errors.fit_turn_scatter`` without
-    aux terms, until that step is exposed as a function of per-turn arrays there.
-    """
-    N = b.shape[0]
-    nh = b.shape[1]
-    mean = b.mean(axis=0)
-    z = (b - mean) / N
-    n_blocks = -(-N // block_turns)
-    if n_blocks < 2:
-        raise AnalysisError(f"{where(source)}: {N} usable turn(s) make {n_blocks} block(s); the scatter needs "
-                            f"at least 2{f' (left out: {left})' if left else ''}")
-    blk = np.arange(N) // block_turns
-    Z = np.zeros((n_blocks, nh))
-    np.add.at(Z, blk, z)
-    cov_all = n_blocks / (n_blocks - 1) * (Z.T @ Z)
-    chi2, n_ok = 0.0, 0
-    for a in range(0, N, 1 << 16):  # in pieces: no second copy of the per-turn covariances
-        Cinv, okc = stacked_inverse(cov[a:a + (1 << 16)])
-        dev = b[a:a + (1 << 16)] - mean
-        chi2 += float(np.einsum("si,sij,sj->", dev[okc], Cinv[okc], dev[okc]))
-        n_ok += int(okc.sum())
-    return dict(coef=mean, cov=cov_all, n_blocks=n_blocks, cov_dof=n_blocks - 1, chi2=chi2,
-                chi2_n=int(nh * (n_ok - 1)))
-
-
-def _scan_fit(stream, ks, spec, kind, used: _Used, sc, B, complete_only, per_turn) -> ScanFit:
-    """The `ScanFit` of a streamed log, described as ``fit_scan`` describes a scan's."""
-    notes: list[str] = []
-    if used.excluded:
-        notes.append(f"left out: {used.excluded_text()} — not used in the fit")
-    for why, c in stream.dropped:
-        notes.append(f"{c} row(s) dropped while reading the log: {why}")
-    settings: dict[str, Any] = {"drift": spec.label, "drift_description": spec.description, "errors": kind,
-                                "complete_only": bool(complete_only), "aux": []}
-    N = used.turns.turn.size
-    nb = sc["n_blocks"]
-    if kind == "turns":
-        desc = (f"scatter of {N} per-turn coefficients (estimate = unweighted mean of the turns; "
-                f"covariance = sample covariance / N on {N - 1} dof; Student-t / Hotelling T²)")
-    else:
-        desc = (f"scatter of {nb} blocks of {B} turns (estimate = unweighted mean of the turns; "
-                f"{nb - 1} dof; Student-t / Hotelling T²)")
-        settings["block_turns"] = B
-    settings["errors_description"] = desc
-    nu = sc["cov_dof"]
-    units = "turns" if kind == "turns" else "blocks"
-    notes.append(f"covariance estimated from {nu + 1} {units}: only {nu} degrees of freedom; intervals and "
-                 "tests use Student-t (one coefficient) and Hotelling's T² (cos and sin jointly)")
-    if nu + 1 < FEW_TURNS:
-        msg = (f"only {nu + 1} {units} behind the covariance ({nu} dof): the σ are themselves uncertain "
-               f"by ~{100 / math.sqrt(2 * max(nu, 1)):.0f}%")
-        notes.append(msg)
-        warnings.warn(msg, FitWarning, stacklevel=3)
-    coef = np.array(sc["coef"], dtype=float)
-    cov = np.array(sc["cov"], dtype=float)
-    for j, k in enumerate(ks):
-        cv = cov[2 * j:2 * j + 2, 2 * j:2 * j + 2]
-        snr = math.hypot(coef[2 * j], coef[2 * j + 1]) / math.sqrt(max(0.5 * np.trace(cv), 1e-300))
-        if snr < RICE_SNR:
-            notes.append(f"A{k} is within {RICE_SNR:g} σ of zero: amplitude ± σ is biased upward (Rice); "
-                         "use nullfit.upper_limit for a limit")
-    for a in (coef, cov):
-        a.setflags(write=False)
-    n_used = int(used.turns.n.sum())
-    scan_dropped = int(sum(c for _, c in stream.dropped))
-    excluded = {why: {"turns": t, "rows": r} for why, (t, r) in used.excluded.items()}
-    return ScanFit(
-        harmonics=ks, coef=coef, cov=cov, dof=nu, n_samples=n_used, n_turns=N,
-        dropped_rows=scan_dropped + used.excluded_rows, scan_dropped_rows=scan_dropped,
-        excluded_rows=used.excluded_rows, excluded_turns=used.excluded_turns, drift=spec.label, errors=kind,
-        settings=settings, residual_rms=float(math.sqrt(float(np.nansum(used.turns.rss)) / n_used)),
-        chi2=sc["chi2"], chi2_dof_n=sc["chi2_n"], residuals=None, per_turn=per_turn, aux_names=(),
-        block_turns=B if kind == "blocks" else None, unit=stream.unit, source=stream.source, excluded=excluded,
-        notes=tuple(notes))
+    t = used.turns
+    ts = turn_scatter(t.coef[:, nd:], t.cov, rss=t.rss, resid_dof=t.n - (nd + nh), turn=t.turn, time_mid=t.t_mid,
+                      names=[f"{p}{k}" for k in ks for p in ("c", "s")],
+                      block_turns=block_turns if kind == "blocks" else None, dependence=dependence,
+                      source=stream.source, left_out=used.excluded_text() if used.excluded else "")
+    res = dict(eng=used, coef=ts.coef, cov=ts.cov[:nh, :nh], cov_dof=ts.dof, n_blocks=ts.n_blocks, aux_coef=None,
+               aux_cov=None, chi2=ts.chi2, chi2_n=ts.chi2_n, chi2_p=ts.chi2_p, rss=float(np.nansum(t.rss)),
+               residuals=None, per_turn=_frame(used, stream, ks, spec.degree), vif=None, cond=None, n_params=None,
+               block_turns=ts.block_turns, dependence=ts.dependence, chi2_resid_dof=ts.resid_dof,
+               complete_only=bool(complete_only), hac_lags_given=False)
+    return finish_fit(stream, ks, spec, kind, res)
 
 
 # ----------------------------------------------------------------------------- files

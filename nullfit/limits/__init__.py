@@ -7,7 +7,8 @@ package gives the statements that are right, so that they can be compared side b
 ``"feldman-cousins"`` (:mod:`.unified`)
     unified, likelihood-ratio ordered Neyman construction; ``[lower, upper]``, switching from
     an upper limit to a two-sided interval by itself; exact coverage (projection over the
-    unknown phase for an anisotropic covariance).
+    unknown phase for an anisotropic covariance); with a covariance estimated from turns, the
+    estimated shape scaled by the Hotelling factor; undefined (refused) at CL ≤ 1 − 1/e.
 ``"neyman"`` (:mod:`.neyman`)
     classical one-sided limit ``P(Â ≤ Â_obs | A_up) = 1 − CL``; may be empty (reported).
 ``"bayes"`` (:mod:`.bayes`)
@@ -15,7 +16,11 @@ package gives the statements that are right, so that they can be compared side b
     the posterior is kept for plotting (``limit.posterior``).
 ``"bootstrap"`` (:mod:`.bootstrap`)
     block bootstrap of the per-turn coefficients, percentile upper limit (biased upward,
-    stated).
+    stated); block length follows the turn-to-turn dependence, at most 2000 blocks.
+
+Every limit reports the σ it worked in (``Limit.sigma``, named by ``Limit.sigma_label``) and
+repeats the estimate's caveats (e.g. too few independent blocks to calibrate, a coupling
+correction) in its notes.  ``docs/limits.md`` has the measured coverages.
 
 All limits are on the *amplitude*; :attr:`Limit.upper_peak_to_peak` gives ``2·upper``.
 Every method sits in one registry (:mod:`.registry`): a name → one function signature

@@ -219,5 +219,9 @@ def limit(est, confidence_level: float, *, rng=None, prior: str = "plane", poste
     shape = covariance_shape(est.cov)
     up, post, notes = bayes(est.c, est.s, shape, confidence_level, prior=prior, dof=est.dof,
                             posterior_points=int(posterior_points))
+    label = "sqrt(trace(cov)/2): the unit of the posterior, which uses the full covariance"
+    if est.dof is not None:
+        label += f" (Student kernel, scale × {student_law(est.dof)[1]:.4g})"
     return Limit(method="bayes", confidence_level=float(confidence_level), lower=0.0, upper=up, prior=prior,
-                 cov=shape.array, sigma=shape.sigma, dof=est.dof, notes=notes, posterior=post, **estimate_fields(est))
+                 cov=shape.array, sigma=shape.sigma, sigma_label=label, dof=est.dof, notes=notes + est.caveats,
+                 posterior=post, **estimate_fields(est))

@@ -155,6 +155,9 @@ def limit(est, confidence_level: float, *, rng=None) -> Limit:
     """The one-sided Neyman limit on the amplitude of a harmonic estimate (registry signature)."""
     shape = covariance_shape(est.cov)
     up, empty, notes = neyman(est.amplitude, shape, confidence_level, est.dof)
+    label = "sqrt(trace(cov)/2): the unit of the construction, which uses the full covariance"
+    if est.dof is not None:
+        label += f" (Student law, scale × {student_law(est.dof)[1]:.4g})"
     return Limit(method="neyman", confidence_level=float(confidence_level), lower=None if empty else 0.0,
-                 upper=up, empty=empty, cov=shape.array, sigma=shape.sigma, dof=est.dof, notes=notes,
-                 **estimate_fields(est))
+                 upper=up, empty=empty, cov=shape.array, sigma=shape.sigma, sigma_label=label, dof=est.dof,
+                 notes=notes + est.caveats, **estimate_fields(est))

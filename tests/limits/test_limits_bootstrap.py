@@ -84,6 +84,22 @@ def test_politis_white_grows_with_dependence():
     assert b_ar == math.ceil(ref.max())
 
 
+@pytest.mark.parametrize("n,phi", [(50, 0.0), (300, 0.3), (2000, 0.9), (20000, 0.5), (20000, 0.0)])
+def test_politis_white_matches_arch(n, phi):
+    # arch.bootstrap.optimal_block_length as the independent reference (its loop over lags; ours
+    # uses one FFT): both block lengths agree to rounding.
+    from arch.bootstrap import optimal_block_length
+
+    from nullfit.limits.bootstrap import politis_white
+
+    x = _ar1(np.random.default_rng(n + int(10 * phi)), n, phi)
+    ref = optimal_block_length(x)
+    for j in range(2):
+        sb, cb = politis_white(x[:, j])
+        assert sb == pytest.approx(ref["stationary"].iloc[j], rel=1e-8)
+        assert cb == pytest.approx(ref["circular"].iloc[j], rel=1e-8)
+
+
 def test_progress_bar_when_asked(capsys):
     x = np.random.default_rng(0).standard_normal((100, 2))
     block_means(x, 5, "circular", 500, np.random.default_rng(1), progress=True)
@@ -146,3 +162,15 @@ def test_bootstrap_end_to_end_on_simulated_scans():
     assert binomtest(k, n_scans, 0.93, alternative="less").pvalue > 0.01
     # and the limit is an upper bound of the estimate itself
     assert all(r.upper > r.estimate for r in results)
+
+
+def test_bare_turns_with_strong_dependence_carry_the_calibration_caveat():
+    # no fit behind the series: the bootstrap's own dependence check finds few independent blocks
+    x = _ar1(np.random.default_rng(12), 400, 0.95) * 0.01
+    lim = amplitude_limit(*x.mean(axis=0), np.cov(x.T) / 400, method="bootstrap", turns=x, rng=1, replicates=500)
+    assert any("cannot be calibrated" in n for n in lim.notes)
+    assert lim.block_length > 20  # ⌈6 τ̂⌉, far above Politis–White
+    white = np.random.default_rng(13).standard_normal((400, 2)) * 0.01
+    lim = amplitude_limit(*white.mean(axis=0), np.cov(white.T) / 400, method="bootstrap", turns=white, rng=1,
+                          replicates=500)
+    assert not any("cannot be calibrated" in n for n in lim.notes)
