@@ -275,9 +275,8 @@ class RunAnalysis(Described):
 
 
 def empty_reason(lim) -> str:
-    """Why a limit is the empty set (the method's own last note)."""
-    notes = tuple(getattr(lim, "notes", ()) or ())
-    return notes[-1] if notes else "no amplitude is compatible with the observation at this confidence level"
+    """Why a limit is the empty set (the method says so in ``Limit.empty_reason``)."""
+    return getattr(lim, "empty_reason", None) or "no amplitude is compatible with the observation at this confidence level"
 
 
 def _limit_settings(lim) -> str:

@@ -159,5 +159,5 @@ def limit(est, confidence_level: float, *, rng=None) -> Limit:
     if est.dof is not None:
         label += f" (Student law, scale × {student_law(est.dof)[1]:.4g})"
     return Limit(method="neyman", confidence_level=float(confidence_level), lower=None if empty else 0.0,
-                 upper=up, empty=empty, cov=shape.array, sigma=shape.sigma, sigma_label=label, dof=est.dof,
-                 notes=notes + est.caveats, **estimate_fields(est))
+                 upper=up, empty=empty, empty_reason=notes[-1] if empty else None, cov=shape.array,
+                 sigma=shape.sigma, sigma_label=label, dof=est.dof, notes=notes + est.caveats, **estimate_fields(est))

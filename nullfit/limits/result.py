@@ -55,7 +55,7 @@ class Limit(Described):
 
     ``lower``/``upper`` bound ``quantity``; for an amplitude they are *amplitudes* (not
     peak-to-peak; see :attr:`upper_peak_to_peak`).  One-sided methods report ``lower = 0``.  An
-    empty Neyman set has ``empty=True`` and ``lower = upper = None`` (``notes`` say why).
+    empty Neyman set has ``empty=True``, ``lower = upper = None`` and ``empty_reason`` saying why.
     ``estimate`` is the observed value (``Â`` or the scalar).  ``cov`` is the covariance the
     method used (for the bootstrap, that of its replicates); ``sigma`` is the one σ the method
     worked in, named by ``sigma_label``.
@@ -73,6 +73,7 @@ class Limit(Described):
     c: float | None = None
     s: float | None = None
     empty: bool = False
+    empty_reason: str | None = None
     harmonic: int | None = None
     unit: str = ""
     prior: str | None = None
@@ -114,7 +115,7 @@ class Limit(Described):
         """The statement in one line, e.g. ``"< 2.1e-03 fringe (amplitude)"``."""
         u = f" {self.unit}" if self.unit else ""
         if self.empty:
-            return "empty set (" + (self.notes[-1] if self.notes else "no value is compatible at this CL") + ")"
+            return "empty set (" + (self.empty_reason or "no value is compatible at this CL") + ")"
         if self.lower not in (None, 0.0) or self.method == "central":
             return f"[{fmt(self.lower)}, {fmt(self.upper)}]{u}"
         return f"< {fmt(self.upper)}{u}"
@@ -128,6 +129,7 @@ class Limit(Described):
             "upper": _f(self.upper),
             "upper_peak_to_peak": _f(self.upper_peak_to_peak),
             "empty": bool(self.empty),
+            "empty_reason": self.empty_reason,
             "estimate": self.estimate,
             "c": self.c,
             "s": self.s,
@@ -160,7 +162,7 @@ class Limit(Described):
         if self.phase_deg is not None:
             rows.append(("observed phase", self.phase_deg, "deg"))
         if self.empty:
-            rows.append(("interval", "empty: " + (self.notes[-1] if self.notes else "see notes"), ""))
+            rows.append(("interval", "empty: " + (self.empty_reason or "no value is compatible at this CL"), ""))
         elif self.is_amplitude:
             rows += [
                 ("lower (amplitude)", self.lower, u),

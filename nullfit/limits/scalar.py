@@ -48,7 +48,7 @@ class ScalarEstimate:
 def _base(est: ScalarEstimate, method: str, cl: float, lower, upper, notes, *, empty: bool = False) -> Limit:
     return Limit(method=method, confidence_level=cl, lower=lower, upper=upper, estimate=est.value,
                  cov=[[est.sigma ** 2]], sigma=est.sigma, sigma_label="σ of the estimate", quantity=est.quantity,
-                 unit=est.unit, empty=empty, notes=tuple(notes))
+                 unit=est.unit, empty=empty, empty_reason=notes[-1] if empty else None, notes=tuple(notes))
 
 
 def _needs_boundary(est: ScalarEstimate, method: str) -> None:
