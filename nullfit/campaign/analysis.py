@@ -12,6 +12,7 @@ The same ratio follows from the two peak-to-peak values.
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass, field
 from types import SimpleNamespace
 from pathlib import Path
@@ -25,6 +26,9 @@ from ..reading.stream import ScanStream
 from ..core.render import Described, Summary
 from .facts import aux_status, plural, reading_facts, reading_notes, reading_rows
 
+#: How auxiliary channels correct the limited estimate: one coefficient per reading, or a regression
+#: of the per-turn harmonic on the channels' (nullfit.fitting.coupling).
+COUPLING_ROUTES = ("reading", "turn")
 DEFAULT_LIMITS = ("feldman-cousins", "neyman", "bayes", "bootstrap")
 
 
@@ -79,6 +83,15 @@ class RunAnalysis(Described):
     settings: Mapping[str, Any]
     failed: Mapping[str, str] = field(default_factory=dict)
     notes: tuple[str, ...] = ()
+    #: the harmonic estimate the limits were put on (the fit's, or one corrected for aux channels)
+    estimate: Any = field(default=None, repr=False)
+    #: both coupling routes side by side when auxiliary channels were given (a `CouplingFit`)
+    coupling: Any = field(default=None, repr=False)
+
+    @property
+    def corrected_for(self) -> str | None:
+        """What the limited estimate was corrected for (e.g. ``"tilt_urad (turn level)"``), or None."""
+        return self.settings.get("corrected_for")
 
     # ----------------------------------------------------------------- derived
     @property
@@ -148,6 +161,9 @@ class RunAnalysis(Described):
             "settings": dict(self.settings),
             "notes": list(self.all_notes()),
         }
+        if self.coupling is not None:
+            d["coupling"] = self.coupling.to_dict()
+            d["corrected_for"] = self.corrected_for
         if self.limits or self.failed:
             d["limits"] = {}
             for m, lim in self.limits.items():
@@ -205,7 +221,8 @@ class RunAnalysis(Described):
 
     def all_notes(self) -> tuple[str, ...]:
         notes = tuple(getattr(self.fit, "notes", ()) or ())
-        notes += reading_notes(self.facts) + tuple(aux_status(self.scan, self.fit)) + tuple(self.notes)
+        notes += reading_notes(self.facts) + tuple(aux_status(self.scan, self.fit, self.settings.get("aux", ())))
+        notes += tuple(self.notes)
         notes += tuple(f"{m} limit not computed: {why}" for m, why in self.failed.items())
         if self.random and self.seed is not None:
             notes += (f"random seed {self.seed} (reproduces the random steps)",)
@@ -258,7 +275,16 @@ class RunAnalysis(Described):
                 lrows.append((m, f"not computed: {why}", ""))
             if self.significance is not None:
                 lrows.append(("p-value of A = 0", self.significance.p_value, ""))
-            sections.append(Summary(f"Limits on the {k}θ amplitude", tuple(lrows)))
+            title = f"Limits on the {k}θ amplitude"
+            if self.corrected_for:
+                title += f", corrected for {self.corrected_for}"
+                e = self.estimate
+                lrows.insert(0, (f"corrected c{k}, s{k}", f"{e.c:.4g}, {e.s:.4g}", unit))
+                lrows.insert(1, (f"corrected amplitude A{k} (biased near 0)", e.amplitude, unit))
+            sections.append(Summary(title, tuple(lrows)))
+        if self.coupling is not None:
+            cs = self.coupling.summary()
+            sections.append(Summary("Auxiliary channels: " + cs.title.split(": ")[0], cs.rows, cs.notes))
         if self.expected is not None:
             e = self.expected
             erows = [
@@ -309,7 +335,7 @@ def _one_line(err: BaseException) -> str:
 def analyse(scan, *, harmonics=(1, 2), harmonic: int = 2, drift="per-turn", errors="turns",
             limits=DEFAULT_LIMITS, confidence_level: float = 0.95, rng=None, apparatus=None, site=None,
             velocity=None, speed_m_s: float | None = None, bootstrap_replicates: int = 10_000,
-            progress: bool | None = None, aux=None) -> RunAnalysis:
+            progress: bool | None = None, aux=None, coupling: str = "reading") -> RunAnalysis:
     """Fit ``scan`` (a `Scan`, or a `ScanStream` for a log too large for memory), put limits on harmonic ``harmonic`` by each method in ``limits``, and, when a
     hypothesis is given (``speed_m_s`` and/or ``velocity``), compute the expected signal and the
     expected/bound ratio.  ``drift`` and ``errors`` are passed to :func:`nullfit.fit_scan`
@@ -337,9 +363,12 @@ def analyse(scan, *, harmonics=(1, 2), harmonic: int = 2, drift="per-turn", erro
         _, seed = make_rng(rng)
     s_boot, s_sig = child_seeds(seed, 2)
 
+    if coupling not in COUPLING_ROUTES:
+        raise ValueError(f"coupling must be one of {', '.join(COUPLING_ROUTES)}, not {coupling!r}")
+    channels = ([aux] if isinstance(aux, str) else list(aux)) if aux else []
     fit_kw: dict[str, Any] = {}
-    if aux:
-        fit_kw["aux"] = [aux] if isinstance(aux, str) else list(aux)
+    if channels and coupling == "reading":
+        fit_kw["aux"] = channels
     streamed = isinstance(scan, ScanStream)
     if streamed:  # a log too large for memory: the fit reads it chunk by chunk
         from ..fitting.stream import fit_stream
@@ -348,6 +377,25 @@ def analyse(scan, *, harmonics=(1, 2), harmonic: int = 2, drift="per-turn", erro
     else:
         fit = fit_scan(scan, harmonics=ks, drift=drift, errors=errors, **fit_kw)
     est = fit.harmonic(harmonic)
+    cfit = None
+    corrected_for = None
+    if channels:
+        if streamed:
+            raise AnalysisError(f"{scan.source}: auxiliary channels are fitted on a log in memory only; "
+                                "read it whole (no streaming) to use them")
+        from ..fitting.coupling import fit_coupling
+
+        cfit = fit_coupling(scan, channels, harmonic=harmonic, harmonics=ks, drift=drift)
+        if coupling == "turn":
+            est = cfit.corrected  # AnalysisError, naming the channel, when it is degenerate
+            corrected_for = f"{', '.join(channels)} (turn level)"
+        else:
+            corrected_for = f"{', '.join(channels)} (reading level)"
+            coefs = "; ".join(f"{n} {c:.4g} ± {float(np.sqrt(v)):.2g}" for n, c, v in
+                              zip(fit.aux_names, fit.aux_coef, np.diag(fit.aux_cov)))
+            est = dataclasses.replace(est, caveats=tuple(est.caveats) + (
+                f"corrected estimate: the signal was regressed reading by reading on {', '.join(channels)} "
+                f"({coefs} {scan.unit} per channel unit); the limit bounds the corrected amplitude",))
     out: dict[str, Any] = {}
     failed: dict[str, str] = {}
     for m in methods:
@@ -404,6 +452,8 @@ def analyse(scan, *, harmonics=(1, 2), harmonic: int = 2, drift="per-turn", erro
     settings = {"harmonics": list(ks), "limit_harmonic": harmonic, "drift": fit.drift, "errors": fit.errors,
                 "confidence_level": cl, "limits": list(methods),
                 "hypothesis": None if expected is None else expected.hypothesis_label,
-                "speed_m_s": speed_m_s, "aux": list(fit_kw.get("aux", []))}
+                "speed_m_s": speed_m_s, "aux": channels, "coupling": coupling if channels else None,
+                "corrected_for": corrected_for}
     return RunAnalysis(scan=scan, fit=fit, harmonic=harmonic, limits=out, significance=sig, expected=expected,
-                       apparatus=app, seed=seed, settings=settings, failed=failed, notes=tuple(notes))
+                       apparatus=app, seed=seed, settings=settings, failed=failed, notes=tuple(notes), estimate=est,
+                       coupling=cfit)

@@ -69,10 +69,11 @@ def reading_notes(facts: dict[str, Any]) -> tuple[str, ...]:
     return notes
 
 
-def aux_status(scan, fit) -> list[str]:
-    """Notes on auxiliary channels: which were read but not used, and why."""
+def aux_status(scan, fit, used=()) -> list[str]:
+    """Notes on auxiliary channels: which were read but not used, and why (``used``: channels
+    used outside the fit, e.g. by a turn-level coupling correction)."""
     read = list(getattr(scan, "aux", {}) or {})
-    used = list(getattr(fit, "aux_names", ()) or ())
+    used = list(getattr(fit, "aux_names", ()) or ()) + list(used)
     unused = [n for n in read if n not in used]
     if not unused:
         return []

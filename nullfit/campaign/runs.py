@@ -108,7 +108,7 @@ def compare_runs(runs: Iterable, *, speed_m_s: float | None = 30_000.0, velocity
 def run_row(a) -> dict[str, Any]:
     """One row of the run table for a `RunAnalysis` that has a limit (and possibly a hypothesis)."""
     lim = a.primary_limit
-    h = a.fit.harmonic(a.harmonic)
+    h = a.estimate if getattr(a, "estimate", None) is not None else a.fit.harmonic(a.harmonic)
     e = a.expected
     app = a.apparatus
     date = a.scan.epoch_iso[:10] if a.scan.epoch_iso else None
@@ -135,6 +135,7 @@ def run_row(a) -> dict[str, Any]:
         f"sigma_c{a.harmonic}": h.sigma_c,
         f"sigma_s{a.harmonic}": h.sigma_s,
         "observed_amplitude": h.amplitude,
+        "corrected_for": getattr(a, "corrected_for", None),
         "n_turns": a.fit.n_turns,
         "dropped_rows": a.scan.dropped_rows,
         "partial_turn_rows": a.fit.excluded_rows,

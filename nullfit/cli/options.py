@@ -37,6 +37,9 @@ def scan_options(p: argparse.ArgumentParser, *, aux: bool = False) -> None:
     if aux:
         g.add_argument("--aux", metavar="COL[,COL]",
                        help="auxiliary columns (tilt, temperature …) to regress the signal on (default: none)")
+        g.add_argument("--coupling", choices=("reading", "turn"), default="reading",
+                       help="with --aux: correct the 2θ estimate by one coefficient per reading (default), or by "
+                            "regressing the per-turn 2θ on the channels' (turn level); both are reported")
 
 
 def fit_options(p: argparse.ArgumentParser) -> None:
@@ -233,4 +236,4 @@ def analyse_run(args, scan, limits):
     return analyse(scan, harmonics=args.harmonics, drift=args.drift, errors=args.errors, limits=limits,
                    confidence_level=args.cl, rng=args.seed, apparatus=apparatus, site=site, velocity=velocity,
                    speed_m_s=speed, progress=False if getattr(args, "json", False) else None,
-                   aux=split_list(getattr(args, "aux", None)) or None)
+                   aux=split_list(getattr(args, "aux", None)) or None, coupling=getattr(args, "coupling", "reading"))
