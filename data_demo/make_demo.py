@@ -29,10 +29,12 @@ from typing import Any
 HERE = Path(__file__).resolve().parent
 
 try:  # run from a checkout without installing: the package sits beside data_demo/
+    from nullfit.simulation.logs import simulate_log, tilt
     from nullfit.simulation.models import Drift
     from nullfit.simulation.scans import SIGNAL_COLUMN, TIME_COLUMN, simulate_frame
 except ImportError:  # pragma: no cover - depends on how the script is started
     sys.path.insert(0, str(HERE.parent))
+    from nullfit.simulation.logs import simulate_log, tilt
     from nullfit.simulation.models import Drift
     from nullfit.simulation.scans import SIGNAL_COLUMN, TIME_COLUMN, simulate_frame
 
@@ -79,6 +81,7 @@ class DemoScan:
     story: str
     sim: dict[str, Any] = field(default_factory=dict)
     apparatus: dict[str, Any] = field(default_factory=lambda: INTERFEROMETER)
+    aux: tuple = ()  # auxiliary channels (nullfit.simulation.logs.AuxChannel), coupled into the signal
 
 
 def _campaign() -> list[DemoScan]:
@@ -138,6 +141,17 @@ SCANS: list[DemoScan] = [
              signal_unit="fractional", rng=20260402),
         RESONATORS,
     ),
+    DemoScan(
+        "tilted", "T01", "2026-03-13T21:00:00Z", "relative",
+        "The granite table tilts as it turns: a tilt sensor (column tilt_urad, µrad) follows the rotation "
+        "with its own 2θ part (0.8 µrad at 60°, growing and shrinking by 60 % as the bearing warms and cools "
+        "over 40 minutes) plus a slow wander, and the fringe signal picks up 0.0025 fringe per µrad of tilt — "
+        "a false 2θ of about 0.002 fringe; no true 2θ signal was injected.",
+        dict(n_turns=50, period_s=90.0, samples_per_turn=48, harmonics={1: (0.01, 120.0)},
+             drift=Drift(offset=0.15, slope=3e-6), noise="white", sigma=0.005, rng=20260313),
+        aux=(tilt(0.0025, amplitude_2theta=0.8, phase_2theta_deg=60.0, walk_step=0.02, sensor_sigma=0.01,
+                  modulation=0.6, modulation_period_s=2400.0),),
+    ),
     *_campaign(),
 ]
 
@@ -168,8 +182,9 @@ def _csv_text(spec: DemoScan, df) -> str:
     cols = list(df.columns)
     times = _time_strings(spec, df[cols[0]].to_numpy())
     lines = [",".join(cols)]
-    for t, a, y in zip(times, df[cols[1]].to_numpy(), df[cols[2]].to_numpy()):
-        lines.append(f"{t},{a:.4f},{y:.6g}")
+    extra = [df[c].to_numpy() for c in cols[3:]]  # auxiliary channels
+    for i, (t, a, y) in enumerate(zip(times, df[cols[1]].to_numpy(), df[cols[2]].to_numpy())):
+        lines.append(",".join([t, f"{a:.4f}", f"{y:.6g}"] + [f"{x[i]:.6g}" for x in extra]))
     return "\n".join(lines) + "\n"
 
 
@@ -215,7 +230,10 @@ def _manifest_text(spec: DemoScan, truth, log_name: str) -> str:
     lines = [f"# {BANNER}", f"# Manifest of {log_name} (format: docs/manifest.md).", "",
              "[scan]", f"run_id = {_toml_str(spec.run_id)}", "",
              "[columns]", f"time = {_toml_str(time_col)}", f"angle = {_toml_str('angle_deg')}",
-             f"signal = {_toml_str(sig_col)}", "",
+             f"signal = {_toml_str(sig_col)}"]
+    if spec.aux:
+        lines.append("aux = [" + ", ".join(_toml_str(c.name) for c in spec.aux) + "]")
+    lines += ["",
              "[units]", f"time = {_toml_str('iso' if spec.time_format == 'iso' else 's')}",
              f"angle = {_toml_str('deg')}", f"signal = {_toml_str(truth.unit)}", ""]
     if spec.time_format == "relative":
@@ -224,8 +242,12 @@ def _manifest_text(spec: DemoScan, truth, log_name: str) -> str:
     lines += [f"{k} = {_toml_value(v)}" for k, v in spec.apparatus.items()]
     lines += ["", "[site]"]
     lines += [f"{k} = {_toml_value(v)}" for k, v in SITE.items()]
+    channels = "".join(f" Channel {c.name} ({c.unit}): 2θ part {c.amplitude_2theta:g} at {c.phase_2theta_deg:g}° "
+                       f"(modulated by ±{c.modulation:g} over {c.modulation_period_s:g} s), "
+                       f"random-walk step {c.walk_step:g}, sensor noise {c.sensor_sigma:g}, coupled into the "
+                       f"signal at {c.coupling:g} {truth.unit} per {c.unit}." for c in spec.aux)
     notes = (f"{BANNER}\nLaboratory: {LAB}. Site, apparatus and dates are invented too.\n"
-             f"{spec.story}\nTruth: {_truth_line(truth)}")
+             f"{spec.story}\nTruth: {_truth_line(truth)}{channels}")
     assert "'''" not in notes
     lines += ["", "[notes]", f"text = '''\n{notes}'''"]  # a multi-line literal string (no escapes)
     return "\n".join(lines) + "\n"
@@ -264,7 +286,11 @@ def make_demo(out_dir: Path | str = HERE, *, force: bool = False) -> list[Path]:
                               "pass --force to overwrite")
     truths = {}
     for spec in SCANS:
-        df, truth = simulate_frame(time_format=spec.time_format, **_sim_kwargs(spec))
+        if spec.aux:
+            df, log_truth = simulate_log(aux=spec.aux, time_format=spec.time_format, **_sim_kwargs(spec))
+            truth = log_truth.scan
+        else:
+            df, truth = simulate_frame(time_format=spec.time_format, **_sim_kwargs(spec))
         log = out_dir / f"{spec.stem}.csv"
         log.parent.mkdir(parents=True, exist_ok=True)
         with open(log, "w", encoding="utf-8", newline="\n") as fh:
@@ -272,6 +298,11 @@ def make_demo(out_dir: Path | str = HERE, *, force: bool = False) -> list[Path]:
         with open(log.with_suffix(".toml"), "w", encoding="utf-8", newline="\n") as fh:
             fh.write(_manifest_text(spec, truth, log.name))
         d = truth.to_dict()
+        if spec.aux:
+            d["aux_channels"] = [{"name": c.name, "unit": c.unit, "coupling": c.coupling,
+                                  "amplitude_2theta": c.amplitude_2theta, "phase_2theta_deg": c.phase_2theta_deg,
+                                  "modulation": c.modulation, "modulation_period_s": c.modulation_period_s,
+                                  "walk_step": c.walk_step, "sensor_sigma": c.sensor_sigma} for c in spec.aux]
         truths[spec.run_id] = {"log": f"{spec.stem}.csv", "start_utc": spec.start_utc,
                                "time_format": spec.time_format, "story": spec.story, **d}
     with open(out_dir / "truth.json", "w", encoding="utf-8", newline="\n") as fh:

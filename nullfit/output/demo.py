@@ -72,7 +72,9 @@ def run_demo(data=None, out=None, force: bool = False, seed: int = 20261201, pro
     print(f"Single scans — hypothesis: classical wind at {DEMO_SPEED_M_S:.0f} m/s as a fixed in-plane wind\n")
     for path, s in zip(singles, seeds):
         scan = read_scan(path)
-        a = analyse(scan, rng=s, speed_m_s=DEMO_SPEED_M_S, progress=progress)
+        # a log with auxiliary channels (the tilted table): correct its 2θ by a turn-level coupling fit
+        extra = {"aux": list(scan.aux), "coupling": "turn"} if scan.aux else {}
+        a = analyse(scan, rng=s, speed_m_s=DEMO_SPEED_M_S, progress=progress, **extra)
         analyses.append(a)
         print(plain_summary(a.summary()).as_text())
         print()

@@ -36,8 +36,11 @@ _AUX_STREAM = 0x41_55_58
 
 @dataclass(frozen=True)
 class AuxChannel:
-    """One auxiliary channel: ``offset + slope·t + A₂ cos(2(θ − φ₂)) + walk`` (true values), logged
-    with extra sensor noise ``sensor_sigma``; it adds ``coupling × true value`` to the signal."""
+    """One auxiliary channel: ``offset + slope·t + A₂ m(t) cos(2(θ − φ₂)) + walk`` (true values),
+    logged with extra sensor noise ``sensor_sigma``; it adds ``coupling × true value`` to the
+    signal.  ``m(t) = 1 + modulation · sin(2π t / modulation_period_s)`` lets the channel's 2θ part
+    change from turn to turn (a bearing that warms up, a floor that settles), which is what lets a
+    turn-level coupling fit tell the channel's contribution from a constant 2θ signal."""
 
     name: str
     unit: str = ""
@@ -48,19 +51,23 @@ class AuxChannel:
     slope_per_s: float = 0.0
     walk_step: float = 0.0
     sensor_sigma: float = 0.0
+    modulation: float = 0.0
+    modulation_period_s: float = 0.0
 
     def __post_init__(self):
         if not str(self.name).strip():
             raise ValueError("an auxiliary channel needs a column name")
         for key in ("coupling", "amplitude_2theta", "phase_2theta_deg", "offset", "slope_per_s", "walk_step",
-                    "sensor_sigma"):
+                    "sensor_sigma", "modulation", "modulation_period_s"):
             v = float(getattr(self, key))
             if not math.isfinite(v):
                 raise ValueError(f"aux channel {self.name!r}: {key} must be finite, not {v!r}")
             object.__setattr__(self, key, v)
-        for key in ("amplitude_2theta", "walk_step", "sensor_sigma"):
+        for key in ("amplitude_2theta", "walk_step", "sensor_sigma", "modulation", "modulation_period_s"):
             if getattr(self, key) < 0:
                 raise ValueError(f"aux channel {self.name!r}: {key} must be >= 0, not {getattr(self, key)!r}")
+        if self.modulation and not self.modulation_period_s > 0:
+            raise ValueError(f"aux channel {self.name!r}: a modulation needs modulation_period_s > 0")
 
     @property
     def c2(self) -> float:
@@ -72,7 +79,10 @@ class AuxChannel:
 
     def true_values(self, t, theta, gen) -> np.ndarray:
         v = self.offset + self.slope_per_s * t
-        v = v + self.c2 * np.cos(2 * theta) + self.s2 * np.sin(2 * theta)
+        m = 1.0
+        if self.modulation:
+            m = 1.0 + self.modulation * np.sin(2 * np.pi * np.asarray(t, dtype=float) / self.modulation_period_s)
+        v = v + m * (self.c2 * np.cos(2 * theta) + self.s2 * np.sin(2 * theta))
         if self.walk_step > 0:
             steps = gen.standard_normal(t.size)
             steps[0] = 0.0
@@ -81,9 +91,11 @@ class AuxChannel:
 
 
 def tilt(coupling: float = 0.0, *, amplitude_2theta: float = 1.0, phase_2theta_deg: float = 0.0,
-         walk_step: float = 0.0, sensor_sigma: float = 0.0, name: str = "tilt_urad") -> AuxChannel:
-    """A tilt sensor in µrad that follows the rotation (its own 2θ part) and wanders."""
-    return AuxChannel(name, "µrad", coupling, amplitude_2theta, phase_2theta_deg, 0.0, 0.0, walk_step, sensor_sigma)
+         walk_step: float = 0.0, sensor_sigma: float = 0.0, name: str = "tilt_urad", modulation: float = 0.0,
+         modulation_period_s: float = 0.0) -> AuxChannel:
+    """A tilt sensor in µrad that follows the rotation (its own 2θ part, optionally modulated) and wanders."""
+    return AuxChannel(name, "µrad", coupling, amplitude_2theta, phase_2theta_deg, 0.0, 0.0, walk_step, sensor_sigma,
+                      modulation, modulation_period_s)
 
 
 def temperature(coupling: float = 0.0, *, slope_per_s: float = 1e-4, walk_step: float = 0.0,

@@ -83,7 +83,9 @@ def test_manifest_is_labelled_invented_and_consistent_with_its_log(run_id):
     assert "INVENTED" in man["apparatus"]["name"] and "INVENTED" in man["site"]["name"]
     assert man["scan"]["run_id"] == run_id
     df = pd.read_csv(log)
-    assert list(df.columns) == [man["columns"]["time"], man["columns"]["angle"], man["columns"]["signal"]]
+    assert list(df.columns) == ([man["columns"]["time"], man["columns"]["angle"], man["columns"]["signal"]]
+                                + list(man["columns"].get("aux", [])))
+    assert [c.name for c in spec.aux] == list(man["columns"].get("aux", []))
     assert ("start_utc" in man.get("time", {})) == (spec.time_format == "relative")
     assert man["units"]["time"] == ("iso" if spec.time_format == "iso" else "s")
     # the apparatus and site tables are accepted by the library's own constructors
@@ -110,7 +112,17 @@ def test_read_scan_reads_each_committed_scan_as_simulated(run_id):
     spec = SPECS[run_id]
     log = DEMO / f"{spec.stem}.csv"
     scan = logfile.read_scan(log)
-    _, truth = simulate_scan(**MAKE._sim_kwargs(spec))
+    if spec.aux:  # the signal carries the channels' coupled contribution: simulate the log itself
+        from nullfit.simulation.logs import simulate_log
+
+        sim_df, log_truth = simulate_log(aux=spec.aux, **MAKE._sim_kwargs(spec))
+        truth = log_truth.scan
+        truth_signal = sim_df.iloc[:, 2].to_numpy()
+        for c in spec.aux:
+            np.testing.assert_allclose(scan.aux[c.name], sim_df[c.name].to_numpy(), rtol=1e-5, atol=1e-6)
+    else:
+        _, truth = simulate_scan(**MAKE._sim_kwargs(spec))
+        truth_signal = truth.signal
     df = pd.read_csv(log)
     assert scan.n_samples == truth.n_samples == len(df)
     assert scan.dropped_rows == 0
@@ -118,7 +130,7 @@ def test_read_scan_reads_each_committed_scan_as_simulated(run_id):
     assert scan.epoch_unix == truth.epoch_unix
     np.testing.assert_allclose(scan.time, truth.time, rtol=0, atol=1e-6)  # µs in the file
     np.testing.assert_array_equal(scan.signal, df.iloc[:, 2].to_numpy())
-    np.testing.assert_allclose(scan.signal, truth.signal, rtol=1e-5, atol=0)  # %.6g in the file
+    np.testing.assert_allclose(scan.signal, truth_signal, rtol=1e-5, atol=0)  # %.6g in the file
     if truth.marks:
         assert scan.marks == truth.marks
     _, relabelled = np.unique(truth.turn, return_inverse=True)
