@@ -1,4 +1,4 @@
-"""The command line: JSON shape promised by the issues, exit code 2 with one line on bad input."""
+"""The command line: the JSON shape the README promises, exit code 2 with one line on bad input."""
 
 import json
 import subprocess

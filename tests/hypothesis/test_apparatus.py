@@ -76,8 +76,11 @@ def test_eleven_metre_arm_peak_to_peak_040():
 
 
 def test_short_arm_peak_to_peak_004():
-    # Common practice: a 1.2 m arm (same light and speed) -> peak-to-peak ≈ 0.04 fringe.
-    assert Apparatus(1.2, 550e-9).wind_peak_to_peak(30e3) == pytest.approx(0.04, abs=0.005)
+    # Common practice: a 1.2 m arm (same light and speed) -> peak-to-peak ≈ 0.04 fringe (one significant
+    # digit); the exact value from 2 L v²/(λ c²), computed here, is 0.04370 fringe.
+    p2p = Apparatus(1.2, 550e-9).wind_peak_to_peak(30e3)
+    assert p2p == pytest.approx(2 * 1.2 * 30e3 ** 2 / (550e-9 * 299_792_458.0 ** 2), rel=1e-12)
+    assert round(p2p, 2) == 0.04
 
 
 def test_ratio_forty_compares_like_with_like():

@@ -196,8 +196,11 @@ def test_expected_for_scan_reads_manifest_tables():
 def test_expected_for_scan_lab_wind_without_epoch_or_site():
     scan = _fake_scan(None, {"arm_length_m": 1.2, "wavelength_m": 5.5e-7})
     e = expected_for_scan(scan, speed_m_s=30e3)
-    # Common practice: a 1.2 m arm -> peak-to-peak ≈ 0.04 fringe at 30 km/s
-    assert e.peak_to_peak == pytest.approx(0.04, abs=0.005)
+    # 2 L v²/(λ c²) computed here from the formula (docs/conventions.md), with c exact (SI):
+    exact = 2 * 1.2 * 30e3 ** 2 / (5.5e-7 * 299_792_458.0 ** 2)  # 0.04370 fringe
+    assert e.peak_to_peak == pytest.approx(exact, rel=1e-12)
+    # the value quoted in textbooks, to one significant digit (common practice): 0.04 fringe
+    assert round(e.peak_to_peak, 2) == 0.04
     assert e.start_unix is None and e.duration_s == pytest.approx(1800.0) and e.n_times == 200
     with pytest.raises(ValueError, match="epoch_unix"):
         expected_for_scan(scan, "cmb", site=Site(0.0, 0.0))

@@ -1,4 +1,4 @@
-"""Every bad-input case of issue 2: a ScanError (a ValueError) with ONE line naming the file and,
+"""Every bad-input case of the reader: a ScanError (a ValueError) with ONE line naming the file and,
 where they apply, the row (data rows from 1, header not counted) and the column."""
 
 import warnings
