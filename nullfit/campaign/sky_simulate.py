@@ -25,8 +25,8 @@ from __future__ import annotations
 import numpy as np
 
 from ..core.conventions import make_rng
-from ..hypothesis.sidereal import SkyParameters, c2s2_from_bc, sidereal_signal
-from ..simulation.sky import RunSlot, SkyTruth, manifest_tables
+from ..hypothesis.sidereal import c2s2_from_bc, sidereal_signal
+from ..simulation.sky import SkyTruth, check_campaign, manifest_tables
 from .turn_table import NS_PER_S, SCHEMA_VERSION, TurnTable, turn_columns
 
 __all__ = ["simulate_sky_turns"]
@@ -40,12 +40,7 @@ def simulate_sky_turns(model: str, params, *, site, apparatus, schedule, turn_pe
 
     from .. import __version__
 
-    params = params if isinstance(params, SkyParameters) else SkyParameters(model, tuple(dict(params or {}).items()))
-    if params.model != str(model).strip().lower():
-        raise ValueError(f"parameters are for model {params.model!r}, not {model!r}")
-    schedule = tuple(schedule)
-    if not schedule or not all(isinstance(r, RunSlot) for r in schedule):
-        raise ValueError("schedule must be a non-empty sequence of RunSlot (see campaign_schedule)")
+    params, schedule = check_campaign(model, params, schedule)
     if not (np.isfinite(sigma_turn) and sigma_turn > 0):
         raise ValueError(f"sigma_turn must be positive, not {sigma_turn!r}")
     gen, seed = make_rng(rng)

@@ -37,7 +37,7 @@ from .design import check_harmonics, harmonic_rows, scale_time
 from .kernel import CHUNK_ROWS as KERNEL_CHUNK_ROWS
 from .kernel import TurnKernel
 from .linalg import stacked_inverse
-from .segments import chunk_bounds, segment_sums, turn_segments
+from .segments import Exclusions, chunk_bounds, segment_sums, turn_segments
 
 #: Rows per chunk (whole turns are kept together, so a chunk may be longer).
 CHUNK_ROWS = 1 << 16
@@ -56,7 +56,7 @@ class Chunk:
     sidx: np.ndarray  # segment index (relative to i0) of every row
 
 
-class TurnEngine:
+class TurnEngine(Exclusions):
     """Turns used by a fit, and the column builder / per-turn normal matrices over them.
 
     Parameters
@@ -168,23 +168,12 @@ class TurnEngine:
         return False
 
     # ------------------------------------------------------------------ bookkeeping
-    @property
-    def excluded_rows(self) -> int:
-        return int(sum(r for _, r in self.excluded.values()))
-
-    @property
-    def excluded_turns(self) -> int:
-        return int(sum(n for n, _ in self.excluded.values()))
-
-    def excluded_text(self) -> str:
-        return "; ".join(f"{n} {why} ({r} rows)" for why, (n, r) in self.excluded.items())
 
     def drop_turns(self, bad: np.ndarray, why: str) -> None:
         """Leave out the turns flagged in ``bad`` (recomputing the per-turn quantities)."""
         if not bad.any():
             return
-        n_old, r_old = self.excluded.get(why, (0, 0))
-        self.excluded[why] = (n_old + int(bad.sum()), r_old + int(self.seg.length[bad].sum()))
+        self.exclude(why, bad.sum(), self.seg.length[bad].sum())
         keep = ~bad
         if not keep.any():
             raise AnalysisError(f"{where(self.scan.source)}: no usable turns left to fit ({self.excluded_text()})")

@@ -76,3 +76,25 @@ def chunk_bounds(seg: Segments, chunk_rows: int) -> np.ndarray:
     gap = np.r_[0, np.cumsum(seg.start[1:] != seg.stop[:-1])]
     key = gap * (1 << 40) + before // chunk_rows
     return np.r_[0, np.flatnonzero(key[1:] != key[:-1]) + 1, seg.n].astype(np.int64)
+
+
+class Exclusions:
+    """Bookkeeping of the turns a fit leaves out: ``excluded`` maps a reason to ``(turns, rows)``
+    (shared by the in-memory engine and the streamed fit, so both report the same counts)."""
+
+    excluded: dict
+
+    def exclude(self, why: str, n_turns: int, n_rows: int) -> None:
+        n_old, r_old = self.excluded.get(why, (0, 0))
+        self.excluded[why] = (n_old + int(n_turns), r_old + int(n_rows))
+
+    @property
+    def excluded_rows(self) -> int:
+        return int(sum(r for _, r in self.excluded.values()))
+
+    @property
+    def excluded_turns(self) -> int:
+        return int(sum(n for n, _ in self.excluded.values()))
+
+    def excluded_text(self) -> str:
+        return "; ".join(f"{n} {why} ({r} rows)" for why, (n, r) in self.excluded.items())

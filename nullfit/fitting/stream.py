@@ -43,7 +43,7 @@ from .fit import finish_fit, parse_errors
 from .kernel import TurnKernel
 from .scanfit import ScanFit
 from .turn_errors import turn_scatter
-from .segments import Segments
+from .segments import Exclusions, Segments
 
 #: ``fit_path(..., stream="auto")`` streams Parquet logs of at least this many bytes.
 STREAM_MIN_BYTES = 1 << 30
@@ -165,7 +165,7 @@ def _chunks(stream, progress):
 
 
 # ----------------------------------------------------------------------------- exclusions
-class _Used:
+class _Used(Exclusions):
     """The turns a fit uses, with the exclusions counted as :class:`.engine.TurnEngine` counts them."""
 
     def __init__(self, turns: StreamTurns, complete: np.ndarray, source, complete_only: bool, min_samples: int):
@@ -186,9 +186,6 @@ class _Used:
         self.turns = turns.take(keep)
         self.complete = complete[keep]
 
-    def excluded_text(self) -> str:
-        return "; ".join(f"{n} {why} ({r} rows)" for why, (n, r) in self.excluded.items())
-
     # the engine's bookkeeping, as nullfit.fitting.fit.finish_fit reads it
     aux_names: tuple = ()
     n_aux = 0
@@ -204,20 +201,12 @@ class _Used:
     def drop(self, bad: np.ndarray, why: str) -> None:
         if not bad.any():
             return
-        n_old, r_old = self.excluded.get(why, (0, 0))
-        self.excluded[why] = (n_old + int(bad.sum()), r_old + int(self.turns.n[bad].sum()))
+        self.exclude(why, bad.sum(), self.turns.n[bad].sum())
         if bad.all():
             raise AnalysisError(f"{where(self.source)}: no usable turns left to fit ({self.excluded_text()})")
         self.turns = self.turns.take(~bad)
         self.complete = self.complete[~bad]
 
-    @property
-    def excluded_rows(self) -> int:
-        return int(sum(r for _, r in self.excluded.values()))
-
-    @property
-    def excluded_turns(self) -> int:
-        return int(sum(n for n, _ in self.excluded.values()))
 
 
 def _frame(used: _Used, stream, ks, degree):

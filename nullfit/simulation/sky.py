@@ -192,6 +192,18 @@ class SkyTruth(Described):
                        ("SYNTHETIC: drawn from the model with a known truth; not a measurement",))
 
 
+def check_campaign(model: str, params, schedule) -> tuple[SkyParameters, tuple]:
+    """The parameters (as `SkyParameters` of ``model``) and the schedule (a tuple of `RunSlot`) of
+    a simulated campaign, checked."""
+    params = params if isinstance(params, SkyParameters) else SkyParameters(model, tuple(dict(params or {}).items()))
+    if params.model != str(model).strip().lower():
+        raise ValueError(f"parameters are for model {params.model!r}, not {model!r}")
+    schedule = tuple(schedule)
+    if not schedule or not all(isinstance(r, RunSlot) for r in schedule):
+        raise ValueError("schedule must be a non-empty sequence of RunSlot (see campaign_schedule)")
+    return params, schedule
+
+
 def simulate_sky_campaign(model: str, params, *, site: Site, apparatus: Apparatus,
                           schedule: Sequence[RunSlot], period_s: float = 300.0, samples_per_turn: int = 16,
                           sigma: float = 1e-15, noise: str = "white", lab_amplitude: float = 0.0,
@@ -209,12 +221,7 @@ def simulate_sky_campaign(model: str, params, *, site: Site, apparatus: Apparatu
     apparatus and run id) and a :class:`SkyTruth`.
     """
     _check_setup(site, apparatus, orbit)
-    params = params if isinstance(params, SkyParameters) else SkyParameters(model, tuple(dict(params or {}).items()))
-    if params.model != str(model).strip().lower():
-        raise ValueError(f"parameters are for model {params.model!r}, not {model!r}")
-    schedule = tuple(schedule)
-    if not schedule or not all(isinstance(r, RunSlot) for r in schedule):
-        raise ValueError("schedule must be a non-empty sequence of RunSlot (see campaign_schedule)")
+    params, schedule = check_campaign(model, params, schedule)
     harmonics = dict(scan_options.pop("harmonics", None) or {})
     if 2 in harmonics and lab_amplitude:
         raise ValueError("give the lab-fixed 2θ term either as lab_amplitude or in harmonics, not both")
