@@ -18,6 +18,7 @@ import cycles).
 from __future__ import annotations
 
 import importlib
+import sys
 
 __version__ = "0.1.0"
 
@@ -103,14 +104,54 @@ _MODULE_ALIASES = {"sidereal": "hypothesis.sidereal"}
 __all__ = sorted(_EXPORTS) + sorted(_MODULE_ALIASES) + ["__version__"]
 
 
+class _AliasFinder:
+    """Lets ``import nullfit.sidereal`` (before any attribute access) load the aliased package itself.
+
+    Only the names in ``_MODULE_ALIASES`` are answered; the target is imported when asked for, so
+    ``import nullfit`` stays light, and the alias and its target are one module object.  A submodule
+    through the alias is refused with the real name: the import system would otherwise load a
+    second copy, or bind the submodule over the package's function of the same name.
+    """
+
+    def __init__(self):
+        self._specs = {}
+
+    def find_spec(self, fullname, path=None, target=None):
+        head, _, rest = fullname.partition(".")
+        alias, _, below = rest.partition(".")
+        if head != __name__ or alias not in _MODULE_ALIASES:
+            return None
+        if below:
+            real = f"{__name__}.{_MODULE_ALIASES[alias]}.{below}"
+            raise ModuleNotFoundError(f"{__name__}.{alias} is an alias of a package; import {real} instead",
+                                      name=fullname)
+        from importlib.machinery import ModuleSpec
+
+        return ModuleSpec(fullname, self)
+
+    def create_module(self, spec):
+        value = _alias(spec.name.rpartition(".")[2])
+        self._specs[value.__name__] = value.__spec__  # the import system overwrites it; put it back
+        return value
+
+    def exec_module(self, module):
+        module.__spec__ = self._specs.pop(module.__name__, module.__spec__)
+
+
+def _alias(name: str):
+    value = importlib.import_module(f".{_MODULE_ALIASES[name]}", __name__)
+    sys.modules.setdefault(f"{__name__}.{name}", value)
+    globals()[name] = value
+    return value
+
+
+if not any(isinstance(f, _AliasFinder) for f in sys.meta_path):
+    sys.meta_path.insert(0, _AliasFinder())  # ahead of the path finder, which would load a second copy
+
+
 def __getattr__(name: str):
     if name in _MODULE_ALIASES:
-        import sys
-
-        value = importlib.import_module(f".{_MODULE_ALIASES[name]}", __name__)
-        sys.modules.setdefault(f"{__name__}.{name}", value)  # later ``import nullfit.sidereal`` finds it
-        globals()[name] = value
-        return value
+        return _alias(name)
     try:
         module = _EXPORTS[name]
     except KeyError:
