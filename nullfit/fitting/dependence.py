@@ -62,17 +62,21 @@ SOKAL_C = 5.0
 def autocorrelation(x, max_lag: int) -> np.ndarray:
     """Sample autocorrelations ``r_0 … r_max_lag`` of each column of ``x`` (``(N, p)`` or ``(N,)``).
 
-    Demeaned, denominator ``N`` (``r_0 = 1``), by FFT; a constant column gives NaN.
+    Demeaned, denominator ``N`` (``r_0 = 1``), by FFT zero-padded to at least ``2N − 1`` points
+    (so the correlation is linear, not circular), at the next length with small prime factors;
+    a constant column gives NaN.
     """
+    from scipy import fft
+
     x = np.asarray(x, dtype=float)
     one = x.ndim == 1
     if one:
         x = x[:, None]
     n = x.shape[0]
-    d = x - x.mean(axis=0)
-    nfft = 1 << int(math.ceil(math.log2(max(2 * n, 2))))
-    f = np.fft.rfft(d, nfft, axis=0)
-    ac = np.fft.irfft(f * np.conj(f), nfft, axis=0)[: max_lag + 1]
+    d = (x - x.mean(axis=0)).T
+    nfft = fft.next_fast_len(max(2 * n - 1, 2), real=True)
+    f = fft.rfft(d, nfft, axis=-1)
+    ac = fft.irfft(f * np.conj(f), nfft, axis=-1)[:, : max_lag + 1].T
     with np.errstate(invalid="ignore", divide="ignore"):
         r = ac / ac[0]
     return r[:, 0] if one else r
