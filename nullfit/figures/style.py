@@ -10,6 +10,7 @@ muted accents that stay distinct in greyscale print by lightness and marker shap
 from __future__ import annotations
 
 import math
+import textwrap
 
 import numpy as np
 
@@ -74,13 +75,23 @@ def tidy(ax, *, grid: str = "both") -> None:
     ax.set_axisbelow(True)
 
 
+#: characters of an 8-point legend label per inch of figure width (with room for the marker)
+ABOVE_CHARS_PER_INCH = 11
+
+
 def legend(ax, *, above: bool = False, ncol: int = 1, loc: str = "best", **kw):
     """A small, framed legend; ``above=True`` places it in a row above the plotting area so that it
     can never hide data."""
     opts = dict(fontsize=8, frameon=True, framealpha=0.92, edgecolor=HAZE, fancybox=False)
     opts.update(kw)
     if above:
-        return ax.legend(loc="lower left", bbox_to_anchor=(0.0, 1.01), ncol=ncol, borderaxespad=0.0, **opts)
+        # a row above the axes must not be wider than the figure: wrap long labels at word boundaries
+        handles, labels = ax.get_legend_handles_labels()
+        handles, labels = opts.pop("handles", handles), opts.pop("labels", labels)
+        width = max(24, int(ABOVE_CHARS_PER_INCH * ax.figure.get_figwidth() / max(ncol, 1)))
+        labels = [textwrap.fill(t, width, break_long_words=False) for t in labels]
+        return ax.legend(handles, labels, loc="lower left", bbox_to_anchor=(0.0, 1.01), ncol=ncol,
+                         borderaxespad=0.0, **opts)
     return ax.legend(loc=loc, ncol=ncol, **opts)
 
 

@@ -377,3 +377,26 @@ def test_polar_radius_is_never_negative(demo):
     for line in ax.get_lines():
         r = np.asarray(line.get_ydata(), dtype=float)
         assert np.all(r[np.isfinite(r)] >= 0), line.get_gid()
+
+
+@pytest.mark.parametrize("ncol", [1, 2])
+def test_a_legend_above_the_axes_wraps_long_labels_to_the_figure_width(ncol):
+    # a label longer than the figure is wide once made constrained layout collapse the axes (a warning
+    # in the demo); wrapped at word boundaries it fits, and the words are all still there
+    from nullfit.figures import style as st
+
+    fig, ax = plt.subplots(figsize=(5.6, 5.6), layout="constrained")
+    long = ("predicted amplitude (lab-frame wind in the table plane, 30000 m/s, direction unspecified): "
+            "A₂ = 0.196 fringe, phase unknown")
+    ax.plot([0, 1], [0, 1], label=long)
+    ax.plot([0, 1], [1, 0], label="short")
+    leg = st.legend(ax, above=True, ncol=ncol)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # matplotlib's "axes sizes collapsed to zero" would raise here
+        fig.canvas.draw()
+    width = leg.get_window_extent().width / fig.dpi
+    assert width <= fig.get_figwidth()
+    texts = [t.get_text() for t in leg.get_texts()]
+    assert texts[0].split() == long.split() and "\n" in texts[0]
+    assert ax.get_position().width > 0.5  # the axes keep most of the figure
+    plt.close(fig)
