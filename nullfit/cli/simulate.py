@@ -15,7 +15,9 @@ def add_parser(sub) -> None:
                        description="Write a synthetic rotation-scan log (CSV or Parquet, by the suffix of OUT) and "
                                    "a TOML manifest beside it (same stem) whose notes hold the truth and the seed. "
                                    "Amplitudes are amplitudes, not peak-to-peak.")
-    s.add_argument("out", metavar="OUT", help="output log: NAME.csv, NAME.parquet or NAME.pq")
+    s.add_argument("out", metavar="OUT", nargs="?", help="output log: NAME.csv, NAME.parquet or NAME.pq")
+    s.add_argument("-o", "--output", metavar="OUT", dest="output",
+                   help="the same as OUT, spelled as in report and turns")
     s.add_argument("--force", action="store_true", help="overwrite an existing log or manifest")
     s.add_argument("--seed", type=int, default=None, help="random seed (recorded; default: a fresh one)")
     s.add_argument("--run-id", metavar="ID", help="run id written to the manifest (default: OUT's stem)")
@@ -149,7 +151,9 @@ def run(args) -> int:
     from ..simulation.logs import simulate_log, temperature, tilt, write_log
     from ..simulation.scans import DEFAULT_EPOCH_UNIX
 
-    out = Path(args.out)
+    if (args.out is None) == (args.output is None):
+        raise UsageError("give the output log once: nullfit simulate OUT.csv (or -o OUT.csv)")
+    out = Path(args.out if args.out is not None else args.output)
     if out.suffix.lower() not in (".csv", ".parquet", ".pq"):
         raise UsageError(f"{out}: OUT must end in .csv, .parquet or .pq")
     epoch = DEFAULT_EPOCH_UNIX

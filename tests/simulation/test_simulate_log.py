@@ -132,3 +132,14 @@ def test_bad_options_are_one_line_errors(tmp_path, args, needle):
 def test_bad_output_name(tmp_path):
     r = run_cli("simulate", tmp_path / "x.txt")
     assert r.returncode == 2 and ".csv" in r.stderr
+
+
+def test_output_by_option_as_in_report_and_turns(tmp_path):
+    r = run_cli("simulate", "-o", tmp_path / "o.csv", "--turns", "4", "--seed", "1")
+    assert r.returncode == 0, r.stderr
+    assert read_scan(tmp_path / "o.csv").n_turns >= 3
+    for args in ([], [tmp_path / "a.csv", "-o", tmp_path / "b.csv"]):
+        bad = run_cli("simulate", *args, "--turns", "4")
+        lines = bad.stderr.strip().splitlines()
+        assert bad.returncode == 2 and len(lines) == 1 and "OUT" in lines[0], bad.stderr
+    assert not (tmp_path / "a.csv").exists() and not (tmp_path / "b.csv").exists()
