@@ -144,16 +144,17 @@ def test_module_length(module):
 
 
 def test_the_repository_stands_on_its_own():
-    """Nothing in the repository points outside it (the design notes it was built from are not
-    part of it): no file cites a 'shared' folder or the design notes by name."""
+    """Nothing in the repository points outside it (DEVELOPERS.md, "The repository stands on its
+    own"): no file cites the planning folder or the planning notes the project started from."""
     root = PKG.parent
-    needles = ("shared/", "DESIGN.md")
+    # spelled in pieces so that this file does not itself count as a citation
+    needles = ("shared" + "/", "DESIGN" + ".md")
     hits = []
     files = [p for p in root.iterdir() if p.is_file()]
     for folder in ("nullfit", "tests", "docs", "notebooks", "benchmarks", "data_demo", ".ci"):
         files += [p for p in (root / folder).rglob("*") if p.is_file() and "__pycache__" not in p.parts]
     for p in files:
-        if p.suffix not in {".py", ".md", ".toml", ".ipynb", ".txt", ".cfg", ""} or p == Path(__file__).resolve():
+        if p.suffix not in {".py", ".md", ".toml", ".ipynb", ".txt", ".cfg", ""}:
             continue
         text = p.read_text(encoding="utf-8", errors="replace")
         hits += [f"{p.relative_to(root)} mentions {n!r}" for n in needles if n in text]

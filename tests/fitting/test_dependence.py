@@ -65,7 +65,8 @@ def test_integrated_time_window_by_a_plain_loop():
 
 def test_integrated_time_of_ar1_is_its_theoretical_value():
     # AR(1): τ = (1 + ρ)/(1 − ρ) (common practice); Sokal's estimate has relative variance
-    # ≈ 2(2M + 1)/N (Sokal's lecture-note formula, recalled from memory): 5 σ tolerance.
+    # ≈ 2(2M + 1)/N for a window of M lags (the usual large-N variance of a windowed
+    # autocorrelation sum, recalled from memory): 5 σ tolerance.
     rng = np.random.default_rng(3)
     n, rho = 200_000, 0.6
     x = ar1(rng, n, rho)
