@@ -40,7 +40,7 @@ from pathlib import Path
 from ..core.errors import ScanError
 from .columns import check_options, one_line, resolve_columns
 from .csv_arrow import csv_header, decode_text, read_csv_arrow, read_header
-from .manifest import load_manifest
+from .manifest import open_log
 from .scan import Scan
 
 PARQUET_SUFFIXES = (".parquet", ".pq", ".parq")
@@ -155,16 +155,7 @@ def read_scan(path, *, time=None, angle=None, signal=None, angle_unit=None, mani
                                manifest=None if manifest is None else manifest, nonfinite=nonfinite,
                                signal_unit=signal_unit, aux=aux)
     check_options(angle_unit, signal_unit, nonfinite)
-    p = Path(path)
-    src = str(path)
-    if not p.exists():
-        raise ScanError(f"{src}: no such file")
-    if p.is_dir():
-        raise ScanError(f"{src}: is a directory, not a scan log")
-    try:
-        man = load_manifest(manifest, p)
-    except ScanError as err:  # say which log the manifest belongs to (it may have been found silently)
-        raise ScanError(f"{err} (manifest of {src})") from None
+    p, src, man = open_log(path, manifest)
     kw = {"time": time, "angle": angle, "signal": signal, "aux": aux}
     try:
         with open(p, "rb") as f:

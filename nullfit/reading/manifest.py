@@ -264,3 +264,18 @@ def load_manifest(manifest, log_path=None) -> Manifest | None:
         found = find_manifest(log_path) if log_path is not None else None
         return read_manifest(found) if found is not None else None
     return read_manifest(manifest)
+
+
+def open_log(path, manifest) -> tuple[Path, str, Manifest | None]:
+    """``(path, name for messages, manifest)`` of a log file that must exist (one-line
+    :class:`ScanError` otherwise); the manifest as :func:`load_manifest` finds it, its errors
+    naming the log it belongs to (it may have been found silently beside the log)."""
+    p, src = Path(path), str(path)
+    if not p.exists():
+        raise ScanError(f"{src}: no such file")
+    if p.is_dir():
+        raise ScanError(f"{src}: is a directory, not a scan log")
+    try:
+        return p, src, load_manifest(manifest, p)
+    except ScanError as err:
+        raise ScanError(f"{err} (manifest of {src})") from None

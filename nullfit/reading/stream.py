@@ -51,7 +51,7 @@ import numpy as np
 from ..core.errors import ScanError
 from .columns import Plan, SignalUnitCheck, TimeDecoder, check_options, one_line
 from .events import GapFinder
-from .manifest import Manifest, load_manifest
+from .manifest import Manifest, open_log
 from .marks import MarkBins
 from .turn_numbering import SecondLook, TurnCounter, Unwrapper
 from .validate import AzimuthSet, LogCheck, any_complete_turn, check_turns
@@ -116,7 +116,6 @@ class ScanStream:
     @property
     def run_id(self) -> str:
         """The manifest's run id, else the file stem (as `Scan.run_id`)."""
-        from pathlib import Path
 
         if self.meta.run_id:
             return str(self.meta.run_id)
@@ -190,15 +189,7 @@ class _StreamReader:
         check_options(angle_unit, signal_unit, nonfinite)
         if chunk_rows < 1:
             raise ScanError(f"chunk_rows must be at least 1, not {chunk_rows}")
-        p, src = Path(path), str(path)
-        if not p.exists():
-            raise ScanError(f"{src}: no such file")
-        if p.is_dir():
-            raise ScanError(f"{src}: is a directory, not a scan log")
-        try:
-            man = load_manifest(manifest, p)
-        except ScanError as err:
-            raise ScanError(f"{err} (manifest of {src})") from None
+        p, src, man = open_log(path, manifest)
         with open(p, "rb") as f:
             magic = f.read(4)
         if magic != b"PAR1":
