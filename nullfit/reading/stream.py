@@ -116,7 +116,6 @@ class ScanStream:
     @property
     def run_id(self) -> str:
         """The manifest's run id, else the file stem (as `Scan.run_id`)."""
-
         if self.meta.run_id:
             return str(self.meta.run_id)
         return Path(self.source).stem if self.source and not self.source.startswith("<") else "scan"
