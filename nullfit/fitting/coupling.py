@@ -226,7 +226,8 @@ def _before(scan, eng, pt, ks, j, dependence) -> HarmonicEstimate:
     names = [f"{p}{k}" for k in ks for p in ("c", "s")]
     ok = pt.ok
     ts = turn_scatter(pt.harm[ok], pt.cov[ok], rss=pt.rss[ok], resid_dof=(eng.seg.length - eng.n_drift - eng.n_harm)[ok],
-                      turn=eng.seg.turn[ok], names=names, dependence=dependence, source=scan.source)
+                      weight=pt.weight[ok], turn=eng.seg.turn[ok], names=names, dependence=dependence,
+                      source=scan.source)
     sl = slice(2 * j, 2 * j + 2)
     caveats = (ts.dependence.caveat,) if ts.dependence.caveat else ()
     return HarmonicEstimate(ks[j], ts.coef[sl][0], ts.coef[sl][1], ts.cov[sl, sl], ts.dof, scan.unit,

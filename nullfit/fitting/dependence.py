@@ -57,26 +57,37 @@ MIN_BLOCKS = 5
 CALIBRATION_BLOCKS = 10
 #: Sokal window constant.
 SOKAL_C = 5.0
+#: Lags computed directly (a dot product each) before the FFT of the whole series is needed: the
+#: check first looks for the Sokal window within them (it is found there unless τ̂ ≳ 10 turns).
+DIRECT_LAGS = 64
 
 
 def autocorrelation(x, max_lag: int) -> np.ndarray:
     """Sample autocorrelations ``r_0 … r_max_lag`` of each column of ``x`` (``(N, p)`` or ``(N,)``).
 
-    Demeaned, denominator ``N`` (``r_0 = 1``), by FFT zero-padded to at least ``2N − 1`` points
-    (so the correlation is linear, not circular), at the next length with small prime factors;
-    a constant column gives NaN.
+    Demeaned, denominator ``N`` (``r_0 = 1``); a constant column gives NaN.  Up to
+    :data:`DIRECT_LAGS` lags each lag is one dot product per column (``N`` multiply-adds); beyond,
+    by FFT zero-padded to at least ``2N − 1`` points (so the correlation is linear, not circular),
+    at the next length with small prime factors.  The two agree to rounding.
     """
-    from scipy import fft
-
     x = np.asarray(x, dtype=float)
     one = x.ndim == 1
     if one:
         x = x[:, None]
     n = x.shape[0]
     d = (x - x.mean(axis=0)).T
-    nfft = fft.next_fast_len(max(2 * n - 1, 2), real=True)
-    f = fft.rfft(d, nfft, axis=-1)
-    ac = fft.irfft(f * np.conj(f), nfft, axis=-1)[:, : max_lag + 1].T
+    if max_lag <= min(DIRECT_LAGS, n - 1):
+        d = np.ascontiguousarray(d)
+        ac = np.empty((max_lag + 1, d.shape[0]))
+        for j, v in enumerate(d):
+            for t in range(max_lag + 1):
+                ac[t, j] = v[t:] @ v[:n - t]
+    else:
+        from scipy import fft
+
+        nfft = fft.next_fast_len(max(2 * n - 1, 2), real=True)
+        f = fft.rfft(d, nfft, axis=-1)
+        ac = fft.irfft(f * np.conj(f), nfft, axis=-1)[:, : max_lag + 1].T
     with np.errstate(invalid="ignore", divide="ignore"):
         r = ac / ac[0]
     return r[:, 0] if one else r
@@ -304,9 +315,14 @@ def check_dependence(series, names=None, *, turn=None, time_mid=None, level: flo
         return TurnDependence(n, names, False, "constant per-turn coefficients", n_gaps=gaps)
     x, names = x[:, keep], tuple(nm for nm, k in zip(names, keep) if k)
     h = ljung_box_lags(n)
-    r = autocorrelation(x, max(h, n // 2))
-    q, pv = ljung_box(r, n, h)
+    # the window is the smallest lag M with M ≥ c τ̂(M): found among the first lags, it is the
+    # window of the whole series; only when it is not there are all N/2 lags needed
+    r = autocorrelation(x, min(n // 2, max(h, DIRECT_LAGS)))
     tau, win, reached = integrated_time(r, n)
+    if not reached.all() and r.shape[0] - 1 < n // 2:
+        r = autocorrelation(x, max(h, n // 2))
+        tau, win, reached = integrated_time(r, n)
+    q, pv = ljung_box(r, n, h)
     p_comb = float(min(1.0, len(names) * float(pv.min())))
     dep = TurnDependence(n, names, True, "", h, tuple(map(float, r[1])), tuple(map(float, q)),
                          tuple(map(float, pv)), p_comb, float(level), tuple(map(float, tau)),

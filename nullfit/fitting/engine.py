@@ -317,10 +317,10 @@ class TurnEngine(Exclusions):
         # every turn of the scan goes through the kernel (left-out turns are few), so that its
         # chunks, and the numbers, are those of the same scan streamed in pieces
         scan, every, i = self.scan, self._every, self._idx
-        sol = kern.run(scan.time, scan.angle, scan.signal, every, first_rows=scan.rows[every.start], correct=correct)
+        sol = kern.run(scan.time, scan.angle, scan.signal, every, first_rows=scan.row_of(every.start), correct=correct)
         if i.size and i[-1] - i[0] == i.size - 1:  # the used turns are consecutive: views, no copies
             i = slice(int(i[0]), int(i[-1]) + 1)
-        return PerTurn(self, sol.coef[i], sol.cov[i], sol.rss[i], sol.ok[i], delta)
+        return PerTurn(self, sol.coef[i], sol.cov[i], sol.rss[i], sol.ok[i], delta, sol.weight[i])
 
 
 def turn_frame(turn, t_mid, n_samples, complete, harm, cov, rss, *, ks, unit, source, degree, excluded):
@@ -353,6 +353,7 @@ class PerTurn:
     rss: np.ndarray
     ok: np.ndarray  # turn could be solved (enough readings, non-singular)
     delta: np.ndarray | None
+    weight: np.ndarray | None = None  # (n, 2K, 2K) harmonic normal matrix, drift projected out
 
     @property
     def harm(self) -> np.ndarray:

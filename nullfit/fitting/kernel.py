@@ -43,7 +43,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .linalg import Workspace, inverse_soa
+from .linalg import Workspace, inverse_soa, schur_soa
 from .segments import Segments, segment_sums
 
 #: Readings per chunk of whole turns: the columns and products of a chunk (~20 rows of 8 bytes)
@@ -226,22 +226,22 @@ def solve_normal(G: np.ndarray, p: int, ws: Workspace | None = None, tail: int =
     """Least squares of every turn from its augmented normal matrix ``G`` ``(p + 1, p + 1, N)``
     (last row/column: the signal).
 
-    Returns ``(beta (N, p), inverse (p − tail, p − tail, N), yy − bᵀA⁻¹b (N,), good (N,))``:
+    Returns ``(beta (N, p), inverse (p − tail, p − tail, N), yy − bᵀA⁻¹b (N,), good (N,), L)``:
     coefficients, the block ``[tail:, tail:]`` of the inverse normal matrices (entry-major, zero
-    where not good), the formula RSS, and whether the turn's matrix passed the screening of
-    :func:`.linalg.inverse_soa` (the inverse is a view into the workspace ``ws`` when one is
-    given).
+    where not good), the formula RSS, whether the turn's matrix passed the screening of
+    :func:`.linalg.inverse_soa`, and the Cholesky factors ``(p, p, N)`` (the inverse and the
+    factors are views into the workspace ``ws`` when one is given).
     """
     if G.shape[2] == 1:  # as in inverse_soa: one lane is reduced in another order by numpy
-        beta, inv, rs, good = solve_normal(np.repeat(G, 2, axis=2), p, tail=tail)
-        return beta[:1], inv[:, :, :1], rs[:1], good[:1]
-    inv, W, good = inverse_soa(G[:p, :p], ws, tail=tail)
+        beta, inv, rs, good, L = solve_normal(np.repeat(G, 2, axis=2), p, tail=tail)
+        return beta[:1], inv[:, :, :1], rs[:1], good[:1], L[:, :, :1]
+    inv, W, good, L = inverse_soa(G[:p, :p], ws, tail=tail)
     b = G[p, :p]
     with np.errstate(invalid="ignore", over="ignore"):
         z = np.einsum("ijn,jn->in", W, b)  # z = L⁻¹ b
         beta = np.einsum("jin,jn->ni", W, z)  # β = L⁻ᵀ z = A⁻¹ b
         rs = G[p, p] - np.einsum("in,in->n", z, z)
-    return beta, inv, rs, good
+    return beta, inv, rs, good, L
 
 
 # ----------------------------------------------------------------------------- a block of turns
@@ -252,6 +252,7 @@ class TurnSolution:
     coef: np.ndarray  # (N, p): drift then harmonics
     cov: np.ndarray  # (N, nh, nh) white-noise covariance of the harmonic coefficients
     rss: np.ndarray
+    weight: np.ndarray  # (N, nh, nh) normal matrix of the harmonics, drift projected out (σ̂² cov⁻¹)
     ok: np.ndarray
     t_mid: np.ndarray
     harmonic_sums: np.ndarray  # (nh + 1, nh + 1): Σ over all rows of [1, harmonics] products
@@ -440,6 +441,7 @@ class TurnKernel:
         reps = self.references(time, signal, seg, y_mean, later=True)
         coef = np.empty((N, p))
         cov = np.empty((N, nh, nh))
+        weight = np.empty((N, nh, nh))
         rss = np.empty(N)
         ok = np.zeros(N, bool)
         keep = np.r_[0, nd:p]
@@ -448,7 +450,7 @@ class TurnKernel:
             j0, j1 = chunks[0][0], chunks[-1][1]
             ln = lengths[j0:j1]
             G = self.gram(self._sums(time, angle, signal, seg, chunks, reps, correct, means), ln, reps[1][j0:j1])
-            beta, inv, rs, good = solve_normal(G, p, self._ws, tail=nd)
+            beta, inv, rs, good, L = solve_normal(G, p, self._ws, tail=nd)
             good &= ln > p
             explicit = good & (G[p, p] > RSS_FORMULA_MAX * np.maximum(rs, 0.0))
             if explicit.any():
@@ -459,6 +461,7 @@ class TurnKernel:
                 rss[j0:j1] = rs
                 ok[j0:j1] = True
                 np.multiply(np.moveaxis(inv, 2, 0), (rs / (ln - p))[:, None, None], out=cov[j0:j1])
+                schur_soa(L, nd, out=weight[j0:j1])
             elif good.any():
                 sel = np.flatnonzero(good)
                 gi = sel + j0
@@ -467,9 +470,10 @@ class TurnKernel:
                 ok[gi] = True
                 s2 = rs[sel] / (ln[sel] - p)
                 cov[gi] = np.moveaxis(inv[:, :, sel], 2, 0) * s2[:, None, None]
+                weight[gi] = schur_soa(L[:, :, sel], nd)
         if not ok.all():
-            coef[~ok], cov[~ok], rss[~ok] = np.nan, np.nan, np.nan
-        return TurnSolution(coef, cov, rss, ok, reps[0], hsum)
+            coef[~ok], cov[~ok], weight[~ok], rss[~ok] = np.nan, np.nan, np.nan, np.nan
+        return TurnSolution(coef, cov, rss, weight, ok, reps[0], hsum)
 
     def _explicit_rss(self, time, angle, signal, seg, chunks, reps, beta, rs, explicit, correct):
         """Replace the formula RSS of the flagged turns (``explicit``, over the turns of

@@ -76,8 +76,9 @@ def lower_inverse_soa(L: np.ndarray, ws: Workspace | None = None) -> np.ndarray:
 
 def inverse_soa(A: np.ndarray, ws: Workspace | None = None, tail: int = 0):
     """Inverses of a stack of symmetric positive (semi)definite matrices ``(p, p, N)`` (entry
-    major) with the screening of :func:`stacked_inverse`.  Returns ``(inverse, W, good)`` with
-    ``W = L⁻¹`` (so ``A⁻¹ = WᵀW``); the inverse is zero where not good.  Every matrix goes
+    major) with the screening of :func:`stacked_inverse`.  Returns ``(inverse, W, good, L)`` with
+    ``L`` the Cholesky factor (:func:`cholesky_soa`) and ``W = L⁻¹`` (so ``A⁻¹ = WᵀW``); the
+    inverse is zero where not good.  Every matrix goes
     through the same arithmetic whatever the size of the stack and its place in it, so results
     do not depend on how turns are grouped (chunks of a scan, pieces of a stream).  With a
     workspace the results are views into it, valid until its next use.  ``tail > 0`` returns
@@ -85,8 +86,8 @@ def inverse_soa(A: np.ndarray, ws: Workspace | None = None, tail: int = 0):
     element): as ``L`` is lower triangular, that block is ``W[tail:, tail:]ᵀ W[tail:, tail:]``."""
     p, _, N = A.shape
     if N == 1:  # numpy reduces a single lane in another order: keep every lane's arithmetic the same
-        inv, W, good = inverse_soa(np.repeat(A, 2, axis=2), tail=tail)
-        return inv[:, :, :1], W[:, :, :1], good[:1]
+        inv, W, good, L = inverse_soa(np.repeat(A, 2, axis=2), tail=tail)
+        return inv[:, :, :1], W[:, :, :1], good[:1], L[:, :, :1]
     ws = ws or Workspace()
     diag = np.array([A[i, i] for i in range(p)])
     good = (diag > 0).all(axis=0)
@@ -101,8 +102,25 @@ def inverse_soa(A: np.ndarray, ws: Workspace | None = None, tail: int = 0):
     good &= np.isfinite(idiag).all(axis=0) & (idiag.max(axis=0) < INV_DIAG_MAX)
     if not good.all():
         inv[:, :, ~good] = 0.0
-    return inv, W, good
+    return inv, W, good, L
 
+
+def schur_soa(L: np.ndarray, tail: int, out: np.ndarray | None = None) -> np.ndarray:
+    """Schur complements ``A_tt − A_tl A_ll⁻¹ A_lt`` of the leading ``tail × tail`` blocks, from the
+    Cholesky factors ``L`` ``(p, p, N)`` of :func:`cholesky_soa` (entries above the diagonal are not
+    read): the trailing block of ``L`` factors it, ``S = L_tt L_ttᵀ``.  For a per-turn normal matrix
+    with the drift first, ``S`` is the normal matrix of the harmonics with the drift projected out,
+    the inverse of the harmonic block of ``A⁻¹``.  Returns ``(N, m, m)``, ``m = p − tail``."""
+    p, _, N = L.shape
+    m = p - tail
+    S = np.empty((N, m, m)) if out is None else out
+    for i in range(m):
+        for j in range(i + 1):
+            v = np.einsum("kn,kn->n", L[tail + i, tail:tail + j + 1], L[tail + j, tail:tail + j + 1])
+            S[:, i, j] = v
+            if i != j:
+                S[:, j, i] = v
+    return S
 
 def stacked_inverse(A: np.ndarray):
     """Inverses of a stack of symmetric positive (semi)definite matrices ``(s, p, p)``.
@@ -121,7 +139,7 @@ def stacked_inverse(A: np.ndarray):
         b = min(a + STACK_BLOCK, n)
         At = ws.get("A", (p, p, b - a))
         At[...] = np.moveaxis(A[a:b], 0, 2)
-        inv, _, good[a:b] = inverse_soa(At, ws)
+        inv, _, good[a:b], _ = inverse_soa(At, ws)
         out[a:b] = np.moveaxis(inv, 2, 0)
     return out, good
 

@@ -36,19 +36,16 @@ class Segments:
 
 
 def turn_segments(scan) -> Segments:
-    """The row range of every turn of ``scan`` (turns are contiguous and numbered in time order)."""
-    tr = np.asarray(scan.turn)
-    n = tr.size
-    if n == 0:
-        z = np.zeros(0, np.int64)
-        return Segments(z, z, z, np.zeros(0, bool))
-    brk = np.flatnonzero(tr[1:] != tr[:-1]) + 1
-    start = np.r_[0, brk].astype(np.int64)
-    stop = np.r_[brk, n].astype(np.int64)
-    labels = tr[start]
-    if np.any(np.diff(labels) <= 0):
+    """The row range of every turn of ``scan`` that has readings (from ``scan.turn_start``: turns
+    are contiguous and numbered in time order)."""
+    first = np.asarray(scan.turn_start, dtype=np.int64)
+    counts = np.diff(first, append=np.int64(scan.n_samples))
+    if np.any(counts < 0):
         raise AnalysisError(f"{where(scan.source)}: turn numbers are not contiguous and increasing in time")
-    return Segments(start, stop, labels.astype(np.int64), np.asarray(scan.turn_complete)[labels])
+    keep = counts > 0
+    labels = np.flatnonzero(keep).astype(np.int64)
+    start = first[keep] if not keep.all() else first
+    return Segments(start, start + counts[keep], labels, np.asarray(scan.turn_complete)[labels])
 
 
 def local_time(t, seg_index, t_mid, half_span) -> np.ndarray:

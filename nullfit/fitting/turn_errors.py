@@ -65,8 +65,8 @@ def check_dependence_mode(dependence: str) -> str:
     return dependence
 
 
-def turn_scatter(coef, white_cov=None, *, rss=None, resid_dof=None, turn=None, time_mid=None, names=None,
-                 influence=None,
+def turn_scatter(coef, white_cov=None, *, rss=None, resid_dof=None, weight=None, turn=None, time_mid=None,
+                 names=None, influence=None,
                  block_turns: int | None = None, dependence: str = "widen", source: str = "<data>",
                  left_out: str = "") -> TurnScatter:
     """Estimate, covariance and dependence check from per-turn results.
@@ -81,6 +81,10 @@ def turn_scatter(coef, white_cov=None, *, rss=None, resid_dof=None, turn=None, t
     rss, resid_dof : arrays (N,), optional
         Each turn's residual sum of squares and residual degrees of freedom ``n_i − p``; with
         ``white_cov`` they give the χ² of the scatter.
+    weight : array (N, q, q), optional
+        Each turn's normal matrix of the harmonics with the drift projected out,
+        ``σ̂_i² white_cov_i⁻¹``, when the producer has it (the kernel does: it saves inverting
+        ``white_cov`` again for the χ²).
     turn, time_mid : arrays (N,), optional
         Turn numbers and turn mid-times (s); they only count gaps for the dependence report.
     names : sequence of str, optional
@@ -139,13 +143,13 @@ def turn_scatter(coef, white_cov=None, *, rss=None, resid_dof=None, turn=None, t
     cov = nb / (nb - 1) * (Z.T @ Z)
     chi2 = chi2_n = chi2_p = nu = None
     if white_cov is not None and rss is not None and resid_dof is not None:
-        chi2, chi2_n, chi2_p, nu = scatter_chi2(b, white_cov, rss, resid_dof)
+        chi2, chi2_n, chi2_p, nu = scatter_chi2(b, white_cov, rss, resid_dof, weight)
     for a in (mean, cov):
         a.setflags(write=False)
     return TurnScatter(mean, cov, nb - 1, n, nb, bt, dep, chi2, chi2_n, chi2_p, nu)
 
 
-def scatter_chi2(b, white_cov, rss, resid_dof):
+def scatter_chi2(b, white_cov, rss, resid_dof, weight=None):
     """χ² of the per-turn coefficients about their weighted mean, with the pooled white noise.
 
     Each turn's weight is its normal matrix ``W_i = σ̂_i² C_i⁻¹`` (harmonic block after the drift
@@ -155,26 +159,34 @@ def scatter_chi2(b, white_cov, rss, resid_dof):
     freedom, independent of ``Σ RSS_i/σ² ~ χ²_ν``, so ``χ² = Q/σ̃²`` has mean exactly
     ``q (N − 1)`` (``E[(ν − 2)/χ²_ν] = 1``) and ``χ²/(q (N − 1)) · ν/(ν − 2)`` follows
     ``F(q (N − 1), ν)``, which gives the p-value.  Turns whose covariance is singular are
-    skipped.  Returns ``(chi2, q (N − 1), p, ν)``.
+    skipped.  ``weight`` (optional): the ``W_i`` themselves, when the producer has them (the
+    kernel's Schur complements, :func:`.linalg.schur_soa`); they are then not recomputed from
+    ``white_cov``.  Returns ``(chi2, q (N − 1), p, ν)``.
     """
     from scipy import stats
 
     b = np.asarray(b, dtype=float)
-    C = np.asarray(white_cov, dtype=float)
     rss = np.asarray(rss, dtype=float)
     dof = np.asarray(resid_dof, dtype=float)
-    Cinv, ok = stacked_inverse(C)
+    if weight is None:
+        Cinv, ok = stacked_inverse(np.asarray(white_cov, dtype=float))
+    else:
+        W = np.asarray(weight, dtype=float)
+        ok = np.isfinite(W).all(axis=(1, 2)) & (rss > 0)  # a zero RSS makes the covariance singular
     ok &= np.isfinite(rss) & (dof > 0)
     n_ok = int(ok.sum())
     q = b.shape[1]
     nu = float(dof[ok].sum())
     if n_ok < 2 or nu <= 2:
         return None, None, None, None
-    s2 = rss[ok] / dof[ok]
-    W = Cinv[ok] * s2[:, None, None]
-    bw = np.linalg.solve(W.sum(axis=0), np.einsum("sij,sj->i", W, b[ok]))
-    dev = b[ok] - bw
-    Q = float(np.einsum("si,sij,sj->", dev, W, dev))
+    if weight is None:
+        W = Cinv[ok] * (rss[ok] / dof[ok])[:, None, None]
+    elif not ok.all():
+        W = W[ok]
+    bk = b if ok.all() else b[ok]
+    bw = np.linalg.solve(W.sum(axis=0), np.einsum("sij,sj->i", W, bk))
+    dev = bk - bw
+    Q = float(np.einsum("si,si->", np.einsum("sij,sj->si", W, dev), dev))
     sig2 = float(rss[ok].sum()) / (nu - 2.0)
     chi2 = Q / sig2
     n_chi = q * (n_ok - 1)
@@ -236,7 +248,7 @@ def fit_turn_scatter(scan, ks, spec, aux, complete_only, block_turns, dependence
         if na:  # cannot happen: the same turns were screened above
             raise AnalysisError(f"{where(scan.source)}: per-turn systems became singular after the aux correction")
         eng.drop_turns(bad, "turns whose per-turn system is singular")
-        pt = type(pt)(eng, pt.coef[~bad], pt.cov[~bad], pt.rss[~bad], pt.ok[~bad], delta)
+        pt = type(pt)(eng, pt.coef[~bad], pt.cov[~bad], pt.rss[~bad], pt.ok[~bad], delta, pt.weight[~bad])
     N = eng.seg.n
     b = pt.harm
     z = None
@@ -246,7 +258,8 @@ def fit_turn_scatter(scan, ks, spec, aux, complete_only, block_turns, dependence
         z = np.concatenate([(b - b.mean(axis=0)) / N - zd @ Pbar.T, zd], axis=1)
     names = [f"{p}{k}" for k in ks for p in ("c", "s")]
     resid_dof = eng.seg.length - (eng.n_drift + eng.n_harm)
-    ts = turn_scatter(b, pt.cov, rss=pt.rss, resid_dof=resid_dof, turn=eng.seg.turn, time_mid=eng.t_mid,
+    ts = turn_scatter(b, pt.cov, rss=pt.rss, resid_dof=resid_dof, weight=pt.weight, turn=eng.seg.turn,
+                      time_mid=eng.t_mid,
                       names=names, influence=z,
                       block_turns=block_turns, dependence=dependence, source=scan.source,
                       left_out=eng.excluded_text() if eng.excluded else "")

@@ -14,6 +14,7 @@ the file, row and column.
 from __future__ import annotations
 
 import difflib
+import sys
 from decimal import Decimal
 from typing import Any
 
@@ -449,6 +450,15 @@ class SignalUnitCheck:
                             f"{origin}); they look like a fractional frequency Δν/ν: set signal_unit='fractional'")
 
 
+def release_arrow_memory() -> None:
+    """Hand the memory of Arrow columns already converted back to the system: Arrow's allocator
+    keeps freed blocks for itself, where the numpy arrays made next cannot use them (a CSV time
+    column read as decimals is twice the size of its float64 values)."""
+    pa = sys.modules.get("pyarrow")
+    if pa is not None:
+        pa.default_memory_pool().release_unused()
+
+
 def frame_fields(get, names, n, rows, src, man, kw, angle_unit, signal_unit, nonfinite) -> dict:
     """The arguments of :func:`~nullfit.reading.validate.check_columns` for a table: ``get(name)``
     returns the column (a pandas Series or a pyarrow array; shared by CSV, Parquet and DataFrame
@@ -459,6 +469,7 @@ def frame_fields(get, names, n, rows, src, man, kw, angle_unit, signal_unit, non
     cols = plan.cols
     decoder = TimeDecoder(plan)
     t = decoder.decode(get(cols["time"]), rows)
+    release_arrow_memory()
     angle = plan.numbers(get(cols["angle"]), cols["angle"], rows)
     signal = plan.numbers(get(cols["signal"]), cols["signal"], rows)
     unit_check = SignalUnitCheck(plan)

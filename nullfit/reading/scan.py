@@ -11,11 +11,14 @@ A `Scan` is what every later stage reads.  It holds
   actually turned, so ``cos kθ`` is unaffected and turn bookkeeping is simple;
 * ``signal`` — the fringe position (fractions of a fringe) or fractional frequency Δν/ν
   (``unit`` says which: ``"fringe"`` or ``"fractional"``);
-* ``turn`` — 0-based turn number of every row, and per-turn flags (``turn_complete``,
-  ``turn_sense`` = +1/−1 rotation sense);
+* ``turn_start`` — the index of the first reading of every turn (turns are contiguous and
+  numbered 0, 1, … in time order), and per-turn flags (``turn_complete``, ``turn_sense`` = +1/−1
+  rotation sense); ``turn`` gives the turn number of every reading (made when first asked for);
 * ``rows`` — the source row numbers of the kept rows, counted from 1 over the *data* rows
   (the header line of a CSV file is not counted, so data row ``r`` is line ``r + 1`` of the
-  file), so that any message can point back to the file;
+  file), so that any message can point back to the file.  They are stored (``kept_rows``) only
+  when some row was dropped; otherwise reading ``i`` is row ``i + 1`` and ``rows`` is made when
+  first asked for;
 * ``dropped`` — how many rows were dropped while reading, and why (nothing is dropped
   silently); rows of *partial* turns are kept in the scan (the fit leaves them out by default):
   ``partial_turn_rows`` counts them;
@@ -40,6 +43,7 @@ from .columns import check_options, frame_fields
 from .events import Gap
 from .manifest import Manifest, load_manifest
 from .marks import MarkBins
+from .row_numbers import ImpliedRows
 from .validate import check_columns
 
 #: At most this many gaps and direction changes are listed one by one in a summary.
@@ -70,10 +74,10 @@ class Scan(Described):
     time: np.ndarray
     angle: np.ndarray
     signal: np.ndarray
-    turn: np.ndarray
+    turn_start: np.ndarray
     turn_complete: np.ndarray
     turn_sense: np.ndarray
-    rows: np.ndarray
+    kept_rows: np.ndarray | None = None
     epoch_unix: int | None = None
     unit: str = "fringe"
     source: str = "<data>"
@@ -85,8 +89,10 @@ class Scan(Described):
     gaps: tuple[Gap, ...] = ()
 
     def __post_init__(self):
-        for name in ("time", "angle", "signal", "turn", "turn_complete", "turn_sense", "rows"):
+        for name in ("time", "angle", "signal", "turn_start", "turn_complete", "turn_sense"):
             object.__setattr__(self, name, _readonly(getattr(self, name)))
+        if self.kept_rows is not None:
+            object.__setattr__(self, "kept_rows", _readonly(self.kept_rows))
         object.__setattr__(self, "aux", {k: _readonly(v) for k, v in dict(self.aux).items()})
 
     # ------------------------------------------------------------------ construction
@@ -147,8 +153,9 @@ class Scan(Described):
                                signal_unit=signal_unit, source=source, rows=rows, columns=columns, aux=aux,
                                dropped=dropped, nonfinite=nonfinite,
                                angle_unit_origin=angle_unit_origin, owned=owned)
-        for name in ("time", "angle", "signal", "turn", "turn_complete", "turn_sense", "rows"):
-            fields[name].setflags(write=False)
+        for name in ("time", "angle", "signal", "turn_start", "turn_complete", "turn_sense", "kept_rows"):
+            if fields[name] is not None:
+                fields[name].setflags(write=False)
         for v in fields["aux"].values():
             v.setflags(write=False)
         return cls(**fields, meta=meta if meta is not None else Manifest())
@@ -183,8 +190,9 @@ class Scan(Described):
         pyarrow array), ``names`` lists the columns, ``n`` is the number of rows, ``columns`` maps
         the roles time/angle/signal (and ``aux``, a list) to the names asked for (or None).
         Used by the file readers (``owned=True``: the columns are theirs to give away)."""
-        rows = np.arange(1, n + 1, dtype=np.int64)
-        fields = frame_fields(get, names, n, rows, source, manifest, columns, angle_unit, signal_unit, nonfinite)
+        fields = frame_fields(get, names, n, ImpliedRows(n), source, manifest, columns, angle_unit, signal_unit,
+                              nonfinite)
+        fields["rows"] = None  # rows 1..n: implied
         return cls.from_arrays(**fields, meta=manifest if manifest is not None else Manifest(), owned=owned)
 
     # ------------------------------------------------------------------ facts
@@ -206,10 +214,38 @@ class Scan(Described):
         return int(sum(c for _, c in self.dropped))
 
     @property
+    def turn_counts(self) -> np.ndarray:
+        """Readings in every turn."""
+        return np.diff(self.turn_start, append=self.n_samples)
+
+    @cached_property
+    def turn(self) -> np.ndarray:
+        """The turn number of every reading (int64, read-only; made from :attr:`turn_start`)."""
+        out = np.repeat(np.arange(self.n_turns, dtype=np.int64), self.turn_counts)
+        out.setflags(write=False)
+        return out
+
+    @cached_property
+    def rows(self) -> np.ndarray:
+        """The source row number of every reading (int64, read-only; see the module docstring)."""
+        if self.kept_rows is not None:
+            return self.kept_rows
+        out = np.arange(1, self.n_samples + 1, dtype=np.int64)
+        out.setflags(write=False)
+        return out
+
+    def row_of(self, index) -> np.ndarray:
+        """The source row numbers of the readings at ``index`` (an index array or a slice),
+        without making :attr:`rows` when no row was dropped."""
+        if self.kept_rows is not None:
+            return self.kept_rows[index]
+        return ImpliedRows(self.n_samples)[index]
+
+    @property
     def partial_turn_rows(self) -> int:
         """Rows kept in the scan that belong to partial turns (left out of per-turn statistics by
         the fit by default; not counted in :attr:`dropped_rows`)."""
-        return int(self.n_samples - np.count_nonzero(self.turn_complete[self.turn]))
+        return int(self.n_samples - self.turn_counts[self.turn_complete].sum())
 
     @property
     def angle_deg(self) -> np.ndarray:

@@ -140,7 +140,7 @@ class ScanStream:
         def chunks():
             for a in range(0, scan.n_samples, chunk_rows):
                 b = min(a + chunk_rows, scan.n_samples)
-                yield ScanChunk(scan.time[a:b], scan.angle[a:b], scan.signal[a:b], scan.turn[a:b], scan.rows[a:b],
+                yield ScanChunk(scan.time[a:b], scan.angle[a:b], scan.signal[a:b], scan.turn[a:b], scan.row_of(slice(a, b)),
                                 {k: v[a:b] for k, v in scan.aux.items()})
 
         s = cls(chunks, source=scan.source, unit=scan.unit, epoch_unix=scan.epoch_unix, meta=scan.meta,

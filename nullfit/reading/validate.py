@@ -37,6 +37,7 @@ from ..core.conventions import SIGNAL_UNITS, check_angle_unit
 from ..core.errors import ScanError, ScanWarning, where
 from .events import GapFinder
 from .histogram import LogHistogram
+from .row_numbers import ImpliedRows, row_numbers
 from .timebase import NS_PER_S, UNIX_MAX_S, UNIX_THRESHOLD_S, float_seconds_to_ns
 from .turn_numbering import REVERSAL_HYSTERESIS_DEG, TWO_PI, SecondLook, StepStats, TurnCounter, Unwrapper
 
@@ -374,16 +375,14 @@ def check_columns(time, angle, signal, *, angle_unit="deg", epoch_unix=None, sig
     n = t.size
     if not (a.size == n and y.size == n):
         raise ScanError(f"{where(source)}: columns have different lengths ({n}, {a.size}, {y.size})")
-    rows = np.arange(1, n + 1) if rows is None else np.asarray(rows, dtype=np.int64).ravel()
-    if rows.size != n:
-        raise ValueError(f"rows has {rows.size} entries for {n} readings")
+    rows = row_numbers(rows, n)  # None: rows 1..n, implied (no array)
     aux_arr = {str(k): _as_float(v, source, str(k)) for k, v in (aux or {}).items()}
     for k, v in aux_arr.items():
         if v.size != n:
             raise ScanError(f"{where(source, None, k)}: auxiliary column has {v.size} values for {n} rows")
     if n == 0:
         raise ScanError(f"{where(source)}: the log has no data rows")
-    inputs = [t, a, y, rows, *aux_arr.values()]
+    inputs = [t, a, y, *aux_arr.values()] + ([] if isinstance(rows, ImpliedRows) else [rows])
     chk = LogCheck(source=source, columns=cols, aux_names=tuple(aux_arr), angle_unit=angle_unit,
                    epoch_unix=epoch_unix, nonfinite=nonfinite, angle_unit_origin=angle_unit_origin,
                    hysteresis_deg=hysteresis_deg)
@@ -428,8 +427,9 @@ def check_columns(time, angle, signal, *, angle_unit="deg", epoch_unix=None, sig
     def fresh(x):  # never keep (and freeze) an array the caller still holds
         return x.copy() if not owned and any(np.may_share_memory(x, i) for i in inputs) else x
 
-    return dict(time=t_rel, angle=phi, signal=fresh(y), turn=info.turn_numbers(), turn_complete=info.complete,
-                turn_sense=info.sense, rows=fresh(rows), epoch_unix=chk.epoch, unit=signal_unit, source=source,
+    return dict(time=t_rel, angle=phi, signal=fresh(y), turn_start=info.start, turn_complete=info.complete,
+                turn_sense=info.sense, kept_rows=None if isinstance(rows, ImpliedRows) else fresh(rows),
+                epoch_unix=chk.epoch, unit=signal_unit, source=source,
                 dropped=tuple(drops.items()), aux={k: fresh(v) for k, v in aux_arr.items()},
                 n_reversals=info.n_reversals, reversal_rows=tuple(int(r) for r in rows[info.seg_starts[1:]]),
                 gaps=gaps.gaps())
