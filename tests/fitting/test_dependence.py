@@ -138,3 +138,19 @@ def test_gaps_from_mid_times_when_turn_numbers_are_missing():
     assert count_gaps(time_mid=t) == 1
     assert count_gaps(turn=np.r_[0:30, 31:61], time_mid=t) == 1
     assert count_gaps() == 0
+
+
+@pytest.mark.parametrize("rho", [0.0, 0.5, 0.97])
+def test_window_found_among_the_first_lags_is_that_of_the_whole_series(monkeypatch, rho):
+    # the check looks for the Sokal window among the first lags before it takes all N/2 by FFT;
+    # with the direct lags switched off it takes all of them at once: the results must agree
+    import nullfit.fitting.dependence as D
+
+    x = ar1(np.random.default_rng(5), 4000, rho)
+    quick = D.check_dependence(x, ["a", "b"])
+    monkeypatch.setattr(D, "DIRECT_LAGS", 0)
+    full = D.check_dependence(x, ["a", "b"])
+    assert quick.window == full.window and quick.reached == full.reached
+    np.testing.assert_allclose(quick.tau, full.tau, rtol=1e-10)
+    np.testing.assert_allclose(quick.q, full.q, rtol=1e-10)
+    assert quick.block_turns == full.block_turns and quick.suggested_block_turns == full.suggested_block_turns

@@ -3,7 +3,8 @@ numpy.linalg.inv), and the coverage check on long logs.
 
 * `GramPlan`: the per-turn normal matrices built from fewer products (product-to-sum identities)
   equal ``XᵀX`` formed directly with numpy, for several harmonic sets and drift degrees;
-* `solve_normal` equals numpy.linalg.lstsq per matrix; `stacked_inverse` equals numpy.linalg.inv
+* `solve_normal` equals numpy.linalg.lstsq per matrix (and its Schur complements the projected
+  normal matrices formed with numpy); `stacked_inverse` equals numpy.linalg.inv
   and flags the singular and ill-conditioned matrices;
 * the two ways of summing a chunk (one matrix product per turn when its turns have equal
   lengths, products and ``reduceat`` otherwise) agree; the chunk size does not change the result.
@@ -82,6 +83,10 @@ def test_solve_equals_lstsq_per_turn():
         np.testing.assert_allclose(sol.rss[i], rss[0], rtol=1e-9)
         cov = rss[0] / (b - a - 6) * np.linalg.inv(X.T @ X)[2:, 2:]
         np.testing.assert_allclose(sol.cov[i], cov, rtol=1e-9, atol=1e-12 * np.abs(cov).max())
+        # the harmonics' normal matrix with the drift projected out (Schur complement), by numpy
+        Xd, Xh = X[:, :2], X[:, 2:]
+        S = Xh.T @ Xh - Xh.T @ Xd @ np.linalg.solve(Xd.T @ Xd, Xd.T @ Xh)
+        np.testing.assert_allclose(sol.weight[i], S, rtol=1e-9, atol=1e-12 * np.abs(S).max())
 
 
 def test_equal_length_and_general_chunks_agree(monkeypatch):

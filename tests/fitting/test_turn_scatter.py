@@ -167,6 +167,19 @@ def test_chi2_matches_a_per_turn_loop():
     assert f.chi2 == pytest.approx(chi2, rel=1e-9) and f.chi2_dof_n == n
 
 
+def test_chi2_from_the_kernel_weights_equals_the_chi2_from_inverted_covariances():
+    from nullfit.fitting.engine import TurnEngine
+
+    scan = wander_scan(np.random.default_rng(11), 40, per_turn=24, rho=0.2)
+    eng = TurnEngine(scan, (1, 2), degree=1, min_samples=7)
+    pt = eng.demodulate()
+    kw = dict(rss=pt.rss, resid_dof=eng.seg.length - 6, names=["c1", "s1", "c2", "s2"])
+    with_w = turn_scatter(pt.harm, pt.cov, weight=pt.weight, **kw)
+    inverted = turn_scatter(pt.harm, pt.cov, **kw)  # W_i = σ̂_i² C_i⁻¹ by stacked inverses
+    assert with_w.chi2 == pytest.approx(inverted.chi2, rel=1e-10)
+    assert (with_w.chi2_n, with_w.resid_dof) == (inverted.chi2_n, inverted.resid_dof)
+
+
 @pytest.mark.parametrize("per_turn", [8, 16, 72])
 def test_chi2_dof_is_one_for_white_noise_at_any_readings_per_turn(per_turn):
     # Claim (turn_errors.scatter_chi2): mean exactly 1; χ²/n · ν/(ν−2) ~ F(n, ν) (scipy.stats.f).
