@@ -58,8 +58,8 @@ CALIBRATION_BLOCKS = 10
 #: Sokal window constant.
 SOKAL_C = 5.0
 #: Lags computed directly (a dot product each) before the FFT of the whole series is needed: the
-#: check first looks for the Sokal window within them (it is found there unless τ̂ ≳ 10 turns).
-DIRECT_LAGS = 64
+#: check first looks for the Sokal window within them (it is found there unless τ̂ ≳ 5 turns).
+DIRECT_LAGS = 32
 
 
 def autocorrelation(x, max_lag: int) -> np.ndarray:
@@ -308,12 +308,15 @@ def check_dependence(series, names=None, *, turn=None, time_mid=None, level: flo
     gaps = count_gaps(turn, time_mid)
     if n < MIN_TURNS_CHECK:
         return TurnDependence(n, names, False, f"fewer than {MIN_TURNS_CHECK} turns ({n})", n_gaps=gaps)
-    if not np.all(np.isfinite(x)):
+    xt = np.ascontiguousarray(x.T)  # one series per row: the passes below run along memory
+    if not (np.isfinite(xt.sum()) or np.all(np.isfinite(xt))):  # a finite sum has finite terms
         return TurnDependence(n, names, False, "non-finite per-turn coefficients", n_gaps=gaps)
-    keep = np.ptp(x, axis=0) > 0
+    keep = np.ptp(xt, axis=1) > 0
     if not keep.any():
         return TurnDependence(n, names, False, "constant per-turn coefficients", n_gaps=gaps)
-    x, names = x[:, keep], tuple(nm for nm, k in zip(names, keep) if k)
+    if not keep.all():
+        xt, names = xt[keep], tuple(nm for nm, k in zip(names, keep) if k)
+    x = xt.T
     h = ljung_box_lags(n)
     # the window is the smallest lag M with M ≥ c τ̂(M): found among the first lags, it is the
     # window of the whole series; only when it is not there are all N/2 lags needed

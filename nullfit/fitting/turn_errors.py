@@ -168,23 +168,30 @@ def scatter_chi2(b, white_cov, rss, resid_dof, weight=None):
     b = np.asarray(b, dtype=float)
     rss = np.asarray(rss, dtype=float)
     dof = np.asarray(resid_dof, dtype=float)
+    Wsum = None
     if weight is None:
         Cinv, ok = stacked_inverse(np.asarray(white_cov, dtype=float))
     else:
         W = np.asarray(weight, dtype=float)
-        ok = np.isfinite(W).all(axis=(1, 2)) & (rss > 0)  # a zero RSS makes the covariance singular
+        Wsum = W.sum(axis=0)
+        # a sum of finite matrices is finite: only when it is not are the turns looked at one by one
+        ok = (rss > 0) if np.isfinite(Wsum).all() else np.isfinite(W).all(axis=(1, 2)) & (rss > 0)
+        # (a zero RSS makes the covariance singular: such a turn is skipped, as by the inversion)
     ok &= np.isfinite(rss) & (dof > 0)
+    every = bool(ok.all())
     n_ok = int(ok.sum())
     q = b.shape[1]
-    nu = float(dof[ok].sum())
+    nu = float(dof.sum() if every else dof[ok].sum())
     if n_ok < 2 or nu <= 2:
         return None, None, None, None
     if weight is None:
         W = Cinv[ok] * (rss[ok] / dof[ok])[:, None, None]
-    elif not ok.all():
+    elif not every:
         W = W[ok]
-    bk = b if ok.all() else b[ok]
-    bw = np.linalg.solve(W.sum(axis=0), np.einsum("sij,sj->i", W, bk))
+    if Wsum is None or not every:
+        Wsum = W.sum(axis=0)
+    bk = b if every else b[ok]
+    bw = np.linalg.solve(Wsum, np.einsum("sij,sj->i", W, bk))
     dev = bk - bw
     Q = float(np.einsum("si,si->", np.einsum("sij,sj->si", W, dev), dev))
     sig2 = float(rss[ok].sum()) / (nu - 2.0)
