@@ -62,7 +62,6 @@ class StreamTurns:
     rss: np.ndarray
     ok: np.ndarray
     coverage: np.ndarray  # Σ over every reading of the products of [1, harmonics]
-    weight: np.ndarray  # (N, 2K, 2K) harmonic normal matrix, drift projected out
 
     def take(self, keep: np.ndarray) -> "StreamTurns":
         """The turns flagged in ``keep``: views when they are consecutive (the usual case: only the
@@ -70,7 +69,7 @@ class StreamTurns:
         i = np.flatnonzero(keep)
         sel = slice(int(i[0]), int(i[-1]) + 1) if i.size and i[-1] - i[0] == i.size - 1 else i
         return StreamTurns(self.turn[sel], self.n[sel], self.t_mid[sel], self.coef[sel], self.cov[sel],
-                           self.rss[sel], self.ok[sel], self.coverage, self.weight[sel])
+                           self.rss[sel], self.ok[sel], self.coverage)
 
 
 def _not_increasing(source) -> AnalysisError:
@@ -105,7 +104,9 @@ def stream_turns(stream, kernel: TurnKernel, *, progress=None) -> StreamTurns:
         seg = Segments(start, stop, labels, np.ones(labels.size, bool))
         sol = kernel.run(arrays["time"], arrays["angle"], arrays["signal"], seg, first_rows=arrays["rows"][start])
         coverage = coverage + sol.harmonic_sums
-        parts.append((labels, seg.length, sol.t_mid, sol.coef, sol.cov, sol.rss, sol.ok, sol.weight))
+        # the kernel's weights (sol.weight) are not kept: a year-long stream has millions of turns, and
+        # the χ² recomputes them from the covariances (turn_errors.scatter_chi2)
+        parts.append((labels, seg.length, sol.t_mid, sol.coef, sol.cov, sol.rss, sol.ok))
 
     def piece(ch, a, b, copy=False):
         return {f: (np.array(getattr(ch, f)[a:b]) if copy else np.asarray(getattr(ch, f))[a:b]) for f in _FIELDS}
@@ -138,15 +139,14 @@ def stream_turns(stream, kernel: TurnKernel, *, progress=None) -> StreamTurns:
     nh = 2 * len(kernel.ks)
     if not parts:
         return StreamTurns(np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0), np.zeros((0, kernel.p)),
-                           np.zeros((0, nh, nh)), np.zeros(0), np.zeros(0, bool), np.zeros((nh + 1, nh + 1)),
-                           np.zeros((0, nh, nh)))
+                           np.zeros((0, nh, nh)), np.zeros(0), np.zeros(0, bool), np.zeros((nh + 1, nh + 1)))
     fields = []
-    for i in range(8):  # one field at a time: the parts of the others are not copied meanwhile
+    for i in range(7):  # one field at a time: the parts of the others are not copied meanwhile
         fields.append(np.concatenate([p[i] for p in parts]))
         parts = [p[:i] + (None,) + p[i + 1:] for p in parts]
     if np.any(fields[0][1:] <= fields[0][:-1]):  # a turn number seen again later
         raise _not_increasing(stream.source)
-    return StreamTurns(*fields[:7], coverage=np.asarray(coverage, dtype=float), weight=fields[7])
+    return StreamTurns(*fields, coverage=np.asarray(coverage, dtype=float))
 
 
 def _chunks(stream, progress):
@@ -274,8 +274,7 @@ def fit_stream(stream, *, harmonics=(1, 2), drift="per-turn", errors="turns", bl
     used = _pass(stream, ks, spec, complete_only, nd + nh + 1, progress)
     used.drop(~used.turns.ok, "turns whose per-turn system is singular")
     t = used.turns
-    ts = turn_scatter(t.coef[:, nd:], t.cov, rss=t.rss, resid_dof=t.n - (nd + nh), weight=t.weight, turn=t.turn,
-                      time_mid=t.t_mid,
+    ts = turn_scatter(t.coef[:, nd:], t.cov, rss=t.rss, resid_dof=t.n - (nd + nh), turn=t.turn, time_mid=t.t_mid,
                       names=[f"{p}{k}" for k in ks for p in ("c", "s")],
                       block_turns=block_turns if kind == "blocks" else None, dependence=dependence,
                       source=stream.source, left_out=used.excluded_text() if used.excluded else "")

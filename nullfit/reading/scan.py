@@ -39,7 +39,7 @@ from typing import Any, Mapping
 import numpy as np
 
 from ..core.render import Described, Summary
-from .columns import check_options, frame_fields
+from .columns import check_options, frame_fields, release_arrow_memory
 from .events import Gap
 from .manifest import Manifest, load_manifest
 from .marks import MarkBins
@@ -193,7 +193,10 @@ class Scan(Described):
         fields = frame_fields(get, names, n, ImpliedRows(n), source, manifest, columns, angle_unit, signal_unit,
                               nonfinite)
         fields["rows"] = None  # rows 1..n: implied
-        return cls.from_arrays(**fields, meta=manifest if manifest is not None else Manifest(), owned=owned)
+        scan = cls.from_arrays(**fields, meta=manifest if manifest is not None else Manifest(), owned=owned)
+        del fields
+        release_arrow_memory()  # the raw angle column is gone: its memory back to the system for the fit
+        return scan
 
     # ------------------------------------------------------------------ facts
     @property
