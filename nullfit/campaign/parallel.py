@@ -28,10 +28,11 @@ from __future__ import annotations
 import importlib
 import logging
 import os
-import sys
 import warnings
 from dataclasses import dataclass
 from typing import Any, Callable, Sequence
+
+from ..core.progress import show_progress
 
 DASK_HINT = "pip install 'nullfit[dask]'"
 
@@ -167,5 +168,5 @@ def _gather(dist, client, func, tasks, kwargs, bar_args, failure) -> list:
 def _bar(total: int, progress, desc: str, unit: str):
     from tqdm import tqdm
 
-    show = progress if progress is not None else (total > 1 and sys.stderr.isatty())
+    show = show_progress(progress, total > 1)
     return tqdm(total=total, disable=not show, desc=desc, unit=unit, leave=False)

@@ -18,6 +18,7 @@ from typing import Any, Iterable
 import numpy as np
 
 from ..core.conventions import check_confidence_level, make_rng, peak_to_peak
+from ..core.progress import show_progress
 
 
 # --------------------------------------------------------------------------- inputs
@@ -41,7 +42,7 @@ def _analyses(runs, *, rng=None, progress=None, **kw) -> tuple[list, list, int]:
     out, notes = [], []
     from tqdm import tqdm
 
-    show = progress if progress is not None else len(runs) > 3
+    show = show_progress(progress, len(runs) > 3)
     for r, s in tqdm(list(zip(runs, seeds)), desc="runs", unit="run", disable=not show, leave=False):
         if isinstance(r, RunAnalysis):
             out.append(r)

@@ -30,13 +30,13 @@ smaller logs into memory.
 from __future__ import annotations
 
 import dataclasses
-import sys
 from pathlib import Path
 from types import SimpleNamespace
 
 import numpy as np
 
 from ..core.errors import AnalysisError, where
+from ..core.progress import show_progress
 from .design import check_harmonics, check_separable_sums, parse_drift
 from .engine import turn_frame
 from .fit import finish_fit, parse_errors
@@ -152,9 +152,7 @@ def stream_turns(stream, kernel: TurnKernel, *, progress=None) -> StreamTurns:
 def _chunks(stream, progress):
     """The stream's chunks, with a tqdm progress bar over readings when ``progress`` (default:
     when standard error is a terminal)."""
-    if progress is None:
-        progress = bool(getattr(sys.stderr, "isatty", lambda: False)())
-    if not progress:
+    if not show_progress(progress):
         yield from stream
         return
     from tqdm.auto import tqdm

@@ -62,6 +62,7 @@ import math
 import numpy as np
 
 from ..core.conventions import make_rng
+from ..core.progress import show_progress
 from ..fitting.dependence import block_rule, check_dependence
 from .result import Limit, estimate_fields
 
@@ -160,7 +161,7 @@ def block_means(turns, block_length: int, scheme: str, replicates: int, rng, *, 
     k = int(math.ceil(n / b))
     per_rep = k if scheme != "stationary" else int(n / b + 8 * math.sqrt(n / b) + 16)
     chunk = max(1, min(replicates, int(4_000_000 // max(per_rep, 1))))
-    show = progress if progress is not None else replicates * per_rep > 30_000_000
+    show = show_progress(progress, replicates * per_rep > 30_000_000)
     from tqdm import tqdm
 
     out = np.empty((replicates, x.shape[1]))
