@@ -217,7 +217,8 @@ def fit_coupling(scan, aux, *, harmonic: int = 2, harmonics=(1, 2), model: str =
     vif = float(n * np.linalg.eigvalsh(Ainv[:2, :2])[-1])  # largest inflation over directions of β
     return CouplingFit(**common, degenerate={}, reading=reading, theta=theta, cov=cov, dof=dof,
                        block_turns=ts.block_turns, dependence=ts.dependence, vif=vif,
-                       pseudo=theta[:2] + n * z[:, :2], residual_rms=float(np.sqrt(np.mean(e * e))))
+                       pseudo=theta[:2] + (n - 1) * z[:, :2],  # Tukey's pseudo-values θ̂ + (n − 1)(θ̂ − θ̂₍₋ᵢ₎)
+                       residual_rms=float(np.sqrt(np.mean(e * e))))
 
 
 def _before(scan, eng, pt, ks, j, dependence) -> HarmonicEstimate:

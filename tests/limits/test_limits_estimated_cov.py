@@ -74,13 +74,11 @@ def test_estimated_covariance_covers_full(name, n_turns, axis):
 @pytest.mark.parametrize("c,s", [(1.0, 0.0), (0.0, 1.0), (3.0, 1.0), (0.2, 0.1)])
 def test_converges_to_the_known_covariance_interval(cov, c, s):
     known = amplitude_limit(c, s, cov)
-    for dof, tol in ((10**6, 1e-3), (10**8, 1e-5)):
+    # measured over these 16 cases: largest difference 1.9e-6 at dof = 10⁶, 1.9e-8 at 10⁸ (c − 1 ∝ 1/dof)
+    for dof, tol in ((10**6, 1e-5), (10**8, 1e-7)):
         lim = amplitude_limit(c, s, cov, dof=dof)
         assert lim.upper == pytest.approx(known.upper, rel=tol)
         assert lim.lower == pytest.approx(known.lower, rel=tol, abs=tol * known.upper)
-    # the case reported: Â = 1 on the major axis of diag(1.8, 0.2): 3.683 both ways
-    if c == 1.0 and s == 0.0 and cov[0, 0] == 1.8:
-        assert amplitude_limit(c, s, cov, dof=10**6).upper == pytest.approx(known.upper, rel=1e-5)
 
 
 def test_vectorised_and_public_paths_agree():
