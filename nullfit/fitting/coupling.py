@@ -46,7 +46,7 @@ import numpy as np
 
 from ..core.errors import AnalysisError, where
 from .coupling_result import CouplingFit
-from .design import check_harmonics, parse_drift
+from .design import check_harmonics, harmonic_names, parse_drift
 from .engine import TurnEngine
 from .estimate import HarmonicEstimate
 from .turn_errors import MIN_TURNS, turn_scatter
@@ -224,7 +224,7 @@ def fit_coupling(scan, aux, *, harmonic: int = 2, harmonics=(1, 2), model: str =
 def _before(scan, eng, pt, ks, j, dependence) -> HarmonicEstimate:
     """The uncorrected estimate: the default turn-scatter errors on the signal's per-turn table
     (:func:`turn_scatter`, the same numbers as ``fit_scan(scan)``)."""
-    names = [f"{p}{k}" for k in ks for p in ("c", "s")]
+    names = list(harmonic_names(ks))
     ok = pt.ok
     ts = turn_scatter(pt.harm[ok], pt.cov[ok], rss=pt.rss[ok], resid_dof=(eng.seg.length - eng.n_drift - eng.n_harm)[ok],
                       weight=pt.weight[ok], turn=eng.seg.turn[ok], names=names, dependence=dependence,

@@ -110,6 +110,13 @@ def parse_errors(errors: str = "turns", *, hac_lags=None, block_turns=None):
     return kind, hac_lags, block_turns
 
 
+def check_errors_drift(kind: str, spec) -> None:
+    """Turn and block errors come from per-turn demodulation: they need a per-turn drift."""
+    if kind in ("turns", "blocks") and spec.kind != "per-turn":
+        raise ValueError(f"errors={kind!r} estimates the covariance from per-turn demodulation, which removes "
+                         f"drift turn by turn: use drift='per-turn', or errors='hac' with drift={spec.label!r}")
+
+
 def fit_scan(scan, *, harmonics=(1, 2), drift="per-turn", errors="turns", degree: int = 3,
              knot_turns: float = 2.0, aux=None, hac_lags: int | None = None, block_turns: int | None = None,
              complete_only: bool = True, dependence: str = "widen") -> ScanFit:
@@ -164,9 +171,7 @@ def fit_scan(scan, *, harmonics=(1, 2), drift="per-turn", errors="turns", degree
     if isinstance(aux, str):
         aux = (aux,)
     aux = tuple(aux or ())
-    if kind in ("turns", "blocks") and spec.kind != "per-turn":
-        raise ValueError(f"errors={kind!r} estimates the covariance from per-turn demodulation, which removes "
-                         f"drift turn by turn: use drift='per-turn', or errors='hac' with drift={spec.label!r}")
+    check_errors_drift(kind, spec)
     check_separable(scan.angle, ks, marks=scan.marks, source=scan.source)
     if spec.kind == "spline":
         check_knot_spacing(spec.knot_turns, ks, stacklevel=3)

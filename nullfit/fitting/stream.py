@@ -37,12 +37,12 @@ import numpy as np
 
 from ..core.errors import AnalysisError, where
 from ..core.progress import show_progress
-from .design import check_harmonics, check_separable_sums, parse_drift
+from .design import check_harmonics, check_separable_sums, harmonic_names, parse_drift
 from .engine import turn_frame
-from .fit import finish_fit, parse_errors
+from .fit import check_errors_drift, finish_fit, parse_errors
 from .kernel import TurnKernel
 from .scanfit import ScanFit
-from .turn_errors import turn_scatter
+from .turn_errors import check_dependence_mode, turn_scatter
 from .segments import Exclusions, Segments
 
 #: ``fit_path(..., stream="auto")`` streams Parquet logs of at least this many bytes.
@@ -257,9 +257,8 @@ def fit_stream(stream, *, harmonics=(1, 2), drift="per-turn", errors="turns", bl
     ks = check_harmonics(harmonics)
     spec = parse_drift(drift)
     kind, _, block_turns = parse_errors(errors, block_turns=block_turns)
-    if kind in ("turns", "blocks") and spec.kind != "per-turn":
-        raise ValueError(f"errors={kind!r} estimates the covariance from per-turn demodulation, which removes "
-                         f"drift turn by turn: use drift='per-turn', or errors='hac' with drift={spec.label!r}")
+    check_dependence_mode(dependence)  # before the pass over the log, as fit_scan does
+    check_errors_drift(kind, spec)
     if kind not in ("turns", "blocks"):
         raise AnalysisError(f"{where(stream.source)}: a streamed log is fitted with turn or block errors only; "
                             f"errors={kind!r} needs the log in memory (read_scan, then fit_scan)")
@@ -273,7 +272,7 @@ def fit_stream(stream, *, harmonics=(1, 2), drift="per-turn", errors="turns", bl
     used.drop(~used.turns.ok, "turns whose per-turn system is singular")
     t = used.turns
     ts = turn_scatter(t.coef[:, nd:], t.cov, rss=t.rss, resid_dof=t.n - (nd + nh), turn=t.turn, time_mid=t.t_mid,
-                      names=[f"{p}{k}" for k in ks for p in ("c", "s")],
+                      names=harmonic_names(ks),
                       block_turns=block_turns if kind == "blocks" else None, dependence=dependence,
                       source=stream.source, left_out=used.excluded_text() if used.excluded else "")
     res = dict(eng=used, coef=ts.coef, cov=ts.cov[:nh, :nh], cov_dof=ts.dof, n_blocks=ts.n_blocks, aux_coef=None,

@@ -27,6 +27,7 @@ import numpy as np
 
 from ..core.errors import AnalysisError, where
 from .dependence import TurnDependence, block_edges, block_rule, check_dependence
+from .design import harmonic_names
 from .engine import TurnEngine
 from .linalg import solve_spd, stacked_inverse
 
@@ -263,7 +264,7 @@ def fit_turn_scatter(scan, ks, spec, aux, complete_only, block_turns, dependence
         Pbar, Minv, g = infl_extra
         zd = g @ Minv.T  # influence of each turn on the aux coefficients
         z = np.concatenate([(b - b.mean(axis=0)) / N - zd @ Pbar.T, zd], axis=1)
-    names = [f"{p}{k}" for k in ks for p in ("c", "s")]
+    names = list(harmonic_names(ks))
     resid_dof = eng.seg.length - (eng.n_drift + eng.n_harm)
     ts = turn_scatter(b, pt.cov, rss=pt.rss, resid_dof=resid_dof, weight=pt.weight, turn=eng.seg.turn,
                       time_mid=eng.t_mid,
@@ -289,7 +290,7 @@ def joint_dependence(scan, ks, complete_only) -> TurnDependence:
     except AnalysisError as err:
         return TurnDependence(0, (), False, f"per-turn demodulation failed ({err})")
     b = pt.harm[pt.ok]
-    names = [f"{p}{k}" for k in ks for p in ("c", "s")]
+    names = list(harmonic_names(ks))
     dep = check_dependence(b, names, turn=eng.seg.turn[pt.ok])
     action = "ignored" if dep.positive else ("none" if dep.checked else "not checked")
     return dep.with_action(action, 1, b.shape[0])

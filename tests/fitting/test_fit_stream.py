@@ -211,6 +211,22 @@ def test_streams_refuse_what_needs_the_log_in_memory(make_arrays):
         demodulate_stream(st, drift="poly:2")
 
 
+def test_bad_options_are_refused_before_the_log_is_read(make_arrays):
+    st = ScanStream.from_scan(continuous(make_arrays, seed=9), 100)
+    with pytest.raises(ValueError, match="dependence must be"):
+        fit_stream(_Unreadable(st), dependence="bogus")
+
+
+class _Unreadable:
+    """A stream that fails if anything reads it: options must be checked first."""
+
+    def __init__(self, stream):
+        self.source = stream.source
+
+    def __iter__(self):
+        raise AssertionError("the stream was read before the options were checked")
+
+
 def test_turn_numbers_must_increase(make_arrays):
     s = continuous(make_arrays, seed=10)
     st = ScanStream.from_scan(s, 100)
