@@ -53,6 +53,9 @@ def run(args) -> int:
         raise UsageError(f"--workers must be 0 (serial) or more, not {args.workers}")
     if args.workers is not None and args.scheduler:
         raise UsageError("--workers sizes the local cluster; with --scheduler the scheduler's workers run the logs")
+    if getattr(args, "start_utc", None):
+        raise UsageError("--start-utc gives the start of one log; for the logs of a campaign write [time] start_utc "
+                         "in each log's manifest")
     if args.force and args.resume:
         raise UsageError("--resume updates the table and --force replaces it: give one of them")
     if args.aux is not None and not [a for a in args.aux.split(",") if a.strip()]:
@@ -77,7 +80,7 @@ def run(args) -> int:
         table = demodulate_campaign(
             args.logs, harmonics=args.harmonics, drift=args.drift, complete_only=not args.all_turns,
             aux=args.aux or (), time=args.time, angle=args.angle, signal=args.signal, angle_unit=args.angle_unit,
-            manifest=args.manifest, nonfinite="raise" if args.strict else "drop", workers=args.workers,
+            signal_unit=args.signal_unit, manifest=args.manifest, nonfinite="raise" if args.strict else "drop", workers=args.workers,
             scheduler=args.scheduler, resume=resume)
     except (ConnectionError, ImportError, ResumeMismatch) as err:
         raise UsageError(_flags(str(err))) from None

@@ -132,3 +132,15 @@ def test_bad_options_one_line(logs, tmp_path, capsys, argv, needle):
     assert main(["turns", *map(str, good), "-o", str(tmp_path / "t.parquet"), *argv]) == 2
     err = _lines(capsys.readouterr().err)
     assert len(err) == 1 and needle in err[0] and not (tmp_path / "t.parquet").exists()
+
+
+def test_reading_flags_reach_every_log(logs, tmp_path, capsys):
+    good, _ = logs
+    out = tmp_path / "turns.parquet"
+    # the invented logs are fringe logs: declaring them fractional must be refused for every log, as fit does
+    assert main(["turns", *map(str, good), "-o", str(out), "--workers", "0", "--signal-unit", "fractional"]) == 2
+    assert "fractional" in capsys.readouterr().err and not out.exists()
+    # one start time cannot be that of several logs
+    assert main(["turns", *map(str, good), "-o", str(out), "--workers", "0",
+                 "--start-utc", "2027-01-01T00:00:00Z"]) == 2
+    assert "--start-utc" in capsys.readouterr().err and not out.exists()
