@@ -175,9 +175,11 @@ def plot_folded(scan, fit, *, bins: int = 16, polar: bool = False, harmonic: int
     ax.set_rlim(0.0, hi - r0 + 0.12 * span)
     import matplotlib.ticker as mticker
 
-    e = st.exponent_for([lo - r0, hi - r0])
-    ax.yaxis.set_major_locator(mticker.MaxNLocator(4))
-    ax.yaxis.set_major_formatter(st.scaled_formatter(e))
+    e = st.exponent_for([lo, hi])
+    # ticks at round values of signal − drift, placed at their radii (value − r0 ≥ 0)
+    vals = mticker.MaxNLocator(4).tick_values(r0, hi)
+    ax.yaxis.set_major_locator(mticker.FixedLocator(vals[(vals >= r0) & (vals <= hi + 0.12 * span)] - r0))
+    ax.yaxis.set_major_formatter(st.scaled_formatter(e, offset=r0))  # ticks read signal − drift, not r
     ax.set_rlabel_position(101.25)  # between bin centres (multiples of 360°/bins for 16 bins)
     ax.tick_params(labelsize=8, colors=st.INK)
     for lab in ax.get_yticklabels():
@@ -185,7 +187,7 @@ def plot_folded(scan, fit, *, bins: int = 16, polar: bool = False, harmonic: int
     ax.set_xticks(np.deg2rad(np.arange(0, 360, 45)))
     ax.set_xticklabels([f"{a}°" for a in range(0, 360, 45)])
     ax.set_xlabel("table angle θ of arm 1 [deg], counterclockwise from the reference mark", fontsize=9)
-    ax.set_ylabel(f"radius: signal − drift + {st.number(-r0)} [{st.scaled_unit(u, e)}]", fontsize=9, labelpad=24)
+    ax.set_ylabel(f"signal − drift [{st.scaled_unit(u, e)}] (centre of the plot at {st.number(r0)} {st.unit_text(u)})", fontsize=9, labelpad=24)
     st.tidy(ax)
     st.legend(ax, loc="upper center", bbox_to_anchor=(0.5, -0.12), ncol=1)
     return ax

@@ -142,10 +142,12 @@ def unit_axis(ax, which: str, quantity: str, signal_unit: str | None, *, exponen
     return e
 
 
-def scaled_formatter(exponent: int):
+def scaled_formatter(exponent: int, offset: float = 0.0):
+    """Tick labels ``(v + offset) / 10**exponent``: ``offset`` labels a shifted coordinate (the
+    radius of a polar plot, which cannot be negative) with the value it stands for."""
     import matplotlib.ticker as mticker
 
-    return mticker.FuncFormatter(lambda v, _pos: _tick_text(v, exponent))
+    return mticker.FuncFormatter(lambda v, _pos: _tick_text(v + offset, exponent))
 
 
 def number(v, digits: int = 3) -> str:

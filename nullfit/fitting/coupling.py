@@ -24,8 +24,10 @@ Turn level (route b, :func:`fit_coupling`; common practice in resonator experime
     ``n_b − 1 − p/2`` (the multivariate-regression count: ``2N`` equations, ``2 + p``
     parameters, ``p`` couplings); intervals use Student-t and Hotelling's T².  Measured on
     4000 simulated 40-turn series, the jackknife covers 0.948 (coupling) and 0.946 (corrected
-    estimate, Hotelling) at 95 %, where the residual sandwich scaled by ``N/(N − 1 − p/2)``
-    gave 0.939 and 0.942 (leverage makes it small).
+    estimate, Hotelling) at 95 % (the slow tests of ``tests/fitting/test_coupling.py`` check
+    that it is not below nominal).  A residual sandwich scaled by ``N/(N − 1 − p/2)``, tried
+    once during development and not kept in the code, gave 0.939 and 0.942 (leverage makes it
+    small).
 
 When can a systematic and a signal not be told apart?  ``β`` is the intercept: it is separated
 from the coupling only through the *turn-to-turn variation* of the channel's kθ part.  With

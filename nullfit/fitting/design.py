@@ -42,7 +42,7 @@ The edge sits at ``h = 1/(2k)`` turn; at ``h = 1/k`` turn (twice the edge) at mo
 absorbed (σ inflated by ≤ 1 %).  :func:`check_knot_spacing` therefore warns when
 ``h < 1/k_min`` turn for the lowest requested harmonic — ``h < 1`` turn for the default 1θ+2θ
 fit — and the fit itself additionally reports the variance inflation of every harmonic column
-(see ``nullfit.fit``).  ``tests/test_design.py`` recomputes the two ends of this table.
+(see ``nullfit.fit``).  ``tests/fitting/test_design.py`` recomputes the two ends of this table.
 """
 
 from __future__ import annotations

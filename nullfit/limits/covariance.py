@@ -26,6 +26,7 @@ chosen confidence level.
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 
@@ -131,6 +132,7 @@ def student_law(dof: int) -> tuple[int, float]:
     return dof - 1, dof / (dof - 1)
 
 
+@functools.lru_cache(maxsize=256)
 def hotelling_scale(dof: int, confidence_level: float) -> float:
     """Covariance inflation ``T²_CL / χ²_{2,CL}`` matching the Hotelling quantile at ``CL``."""
     from scipy import stats

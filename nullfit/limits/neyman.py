@@ -22,7 +22,7 @@ Gaussian law of ``(ĉ, ŝ) − μ`` is replaced by the bivariate Student (Hotell
 distribution; its CDF has a closed-form radial integral
 (:func:`nullfit.limits.amplitude_dist.aniso_cdf_student`).
 
-Measured coverage with few turns (``tests/test_limits_coverage.py``; 600–2000 simulated runs
+Measured coverage with few turns (``tests/limits/test_limits_coverage.py``; 600–2000 simulated runs
 per case; 5, 10, 20 turns; isotropic and anisotropic truth; A = 0–4σ): 0.94–1.00 at 95 % CL —
 within 2 points of nominal at small A, conservative at large A.  With an estimated (noisy)
 shape the projection over phases already adds conservatism, so treating the covariance as

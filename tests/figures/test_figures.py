@@ -379,6 +379,17 @@ def test_polar_radius_is_never_negative(demo):
         assert np.all(r[np.isfinite(r)] >= 0), line.get_gid()
 
 
+
+def test_polar_ticks_read_the_signal_not_the_shifted_radius(demo):
+    # the radius is signal − drift shifted to stay ≥ 0; the tick at the "zero" circle must read 0
+    ax = P.plot_folded(demo["scan"], demo["fit"], polar=True)
+    zero = next(ln for ln in ax.get_lines() if ln.get_label().startswith("zero"))
+    r_zero = float(np.asarray(zero.get_ydata())[0])
+    assert r_zero > 0
+    assert ax.yaxis.get_major_formatter()(r_zero, 0) == "0"
+    assert "radius" not in ax.get_ylabel() and "signal − drift" in ax.get_ylabel()
+
+
 @pytest.mark.parametrize("ncol", [1, 2])
 def test_a_legend_above_the_axes_wraps_long_labels_to_the_figure_width(ncol):
     # a label longer than the figure is wide once made constrained layout collapse the axes (a warning
