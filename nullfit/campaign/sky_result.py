@@ -179,6 +179,14 @@ class SkyFit(Described):
         return {n: self.interval(n, confidence_level) for n in self.names}
 
     # ------------------------------------------------------------------ rendering
+    def convention(self) -> str:
+        """What the parameters are, in one line (text and JSON)."""
+        what = ("photon-sector SME coefficients in the Sun-centred celestial equatorial frame: e_JK the "
+                "components of κ̃_e− (e_XX-YY = κ̃^XX − κ̃^YY), o_JK of κ̃_o+" if self.model == "sme" else
+                "Robertson–Mansouri–Sexl P_MM = δ − β + ½ (0 in special relativity)")
+        return (f"{what}; dimensionless; ± is 1σ; intervals are central, Student-t on {self.dof} dof, at "
+                f"{self.confidence_level:.0%} CL; C0/B0 offsets in Δν/ν (mean ± its standard error)")
+
     def to_dict(self) -> dict:
         params = {}
         lims = self.intervals()
@@ -202,7 +210,8 @@ class SkyFit(Described):
              "pair": self.pair, "first_unix": self.first_unix, "last_unix": self.last_unix,
              "latitudes_deg": list(self.latitudes_deg), "offsets": dict(self.offsets),
              "max_eo_correlation": eo[0] if self.model == "sme" else None,
-             "dropped": dict(self.dropped), "notes": list(self.notes), "seed": self.seed}
+             "dropped": dict(self.dropped), "notes": list(self.notes), "seed": self.seed,
+             "convention": self.convention(), "offset_unit": "fractional (Δν/ν)"}
         if self.alias is not None:
             o_names = [n for n in self.all_names if n.startswith("o_")]
             d["alias"] = {n: dict(zip(o_names, map(float, row))) for n, row in zip(self.names, self.alias)}
@@ -217,7 +226,7 @@ class SkyFit(Described):
             est, sig = self[n]
             lim = lims[n]
             rows.append((n, f"{fmt(est, 3)} ± {fmt(sig, 2)}   {cl:.0%} CL [{fmt(lim.lower, 3)}, {fmt(lim.upper, 3)}]",
-                         ""))
+                         "(dimensionless)"))
         for n in self.fixed:
             rows.append((n, "not estimated", ""))
         if self.model == "sme" and len(self.names) > 1:
@@ -226,9 +235,10 @@ class SkyFit(Described):
                 rows.append(("largest e–o correlation", f"{eo[0]:.3f} ({eo[1]}, {eo[2]})", ""))
         for key, val in self.offsets.items():
             if val is not None:
-                rows.append((f"{key} offsets (mean ± σ)", f"{fmt(val['mean'], 3)} ± {fmt(val['sigma'], 2)}", ""))
+                rows.append((f"{key} offsets (mean ± standard error)", f"{fmt(val['mean'], 3)} ± {fmt(val['sigma'], 2)}",
+                             "Δν/ν"))
         title = f"Sky fit ({self.model.upper()}, {self.route} route)"
-        notes = list(self.notes) + [f"dropped: {v} {k}" for k, v in self.dropped if v]
+        notes = [self.convention()] + list(self.notes) + [f"dropped: {v} {k}" for k, v in self.dropped if v]
         return Summary(title, tuple(rows), tuple(notes))
 
     def __repr__(self) -> str:

@@ -2,9 +2,10 @@
 
 from __future__ import annotations
 
-import sys
+from pathlib import Path
 
-from .options import UsageError, print_json
+from .options import UsageError, print_json, with_provenance
+from .wording import to_user_text
 
 
 def add_parser(sub) -> None:
@@ -39,10 +40,7 @@ def add_parser(sub) -> None:
 
 
 def run(args) -> int:
-    import warnings
-
     from ..campaign.sky import fit_sky, load_turns
-    from ..core.errors import FitWarning
 
     if args.combined and args.model != "sme":
         raise UsageError("--combined applies to --model sme")
@@ -51,13 +49,10 @@ def run(args) -> int:
     if args.bounds_table is not None and not args.bounds:
         raise UsageError("--bounds-table needs --bounds")
     table = load_turns(args.inputs)
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always", FitWarning)
-        fit = fit_sky(table, args.model, route=args.route, use_c0=args.use_c0, combined=args.combined,
-                      segments=args.segments, weights=args.weights, orbit=args.orbit,
-                      pair=not args.single_resonator, confidence_level=args.cl)
-    for w in caught:
-        print(f"nullfit: warning: {' '.join(str(w.message).split())}", file=sys.stderr)
+    settings = dict(model=args.model, route=args.route, use_c0=args.use_c0, combined=args.combined,
+                    segments=args.segments, weights=args.weights, orbit=args.orbit, pair=not args.single_resonator,
+                    confidence_level=args.cl)
+    fit = fit_sky(table, **settings)  # warnings: one line each, in flags (the CLI's warning hook)
     bounds = None
     if args.bounds:
         from ..campaign.sky_bounds import bounds_table, published_sky_bounds
@@ -67,15 +62,16 @@ def run(args) -> int:
         d = fit.to_dict()
         if bounds is not None:
             d["published"] = bounds[bounds["source"] != "this campaign"].to_dict(orient="records")
-        print_json(d)
+        print_json(with_provenance(d, inputs=[Path(p) for p in args.inputs], settings=settings))
         return 0
-    print(fit.summary().as_text())
+    print(to_user_text(fit.summary().as_text()))
     if bounds is not None:
         import pandas as pd
 
         print()
-        print(f"bounds on |parameter| at {fit.confidence_level:.0%} CL beside published results (the bundled "
-              "table holds orders of magnitude recalled from memory: not a source to cite)")
+        recalled = (" (the bundled table holds orders of magnitude recalled from memory: not a source to cite)"
+                    if args.bounds_table is None else f" (from {args.bounds_table})")
+        print(f"bounds on |parameter| at {fit.confidence_level:.0%} CL beside published results{recalled}")
         wide = bounds.pivot_table(index="parameter", columns="source", values="bound_abs", sort=False)
         with pd.option_context("display.width", 250, "display.max_columns", 20):
             print(wide.to_string(float_format=lambda v: f"{v:.2g}"))

@@ -14,7 +14,7 @@ FLAGS = {
     "rng": "--seed", "seed": "--seed", "limits": "--limits", "aux": "--aux", "start_utc": "--start-utc",
     "mark_azimuth_deg": "--mark-azimuth", "table_sense": "--table-sense", "n_turns": "--turns",
     "samples_per_turn": "--per-turn", "marks": "--marks", "period_s": "--period", "sigma": "--noise-sigma",
-    "ar1_coef": "--ar1", "flicker_alpha": "--flicker-alpha",
+    "ar1_coef": "--ar1", "flicker_alpha": "--flicker-alpha", "use_c0": "--use-c0", "combined": "--combined",
 }
 
 #: Whole phrases of library messages that have a command-line equivalent (applied first).
@@ -38,7 +38,7 @@ PHRASES = (
     ("although None [columns] aux lists", "although --aux lists"),
 )
 
-_KEYWORD = re.compile(r"\b([a-z_]+)=('[^']*'|\"[^\"]*\"|[^\s,;)]+)")
+_KEYWORD = re.compile(r"\b([a-z_][a-z0-9_]*)=('[^']*'|\"[^\"]*\"|[^\s,;)]+)")
 
 
 def to_flags(message: str) -> str:
@@ -51,6 +51,8 @@ def to_flags(message: str) -> str:
         if flag is None:
             return m.group(0)
         value = m.group(2).strip("'\"")
+        if value == "True":  # a switch
+            return flag
         return f"{flag} {value}" if value not in ("...", "None") else flag
 
     return _KEYWORD.sub(sub, message)

@@ -124,3 +124,15 @@ def test_log_without_mark_azimuth_is_refused(tmp_path, capsys):
     code, _, err = run_main(capsys, *logs, "--model", "rms")
     assert code == 2
     assert len(err.strip().splitlines()) == 1 and "mark_azimuth_deg" in err
+
+
+def test_output_states_its_convention_and_provenance(capsys, year_table):
+    code, out, _ = run_main(capsys, year_table)
+    assert code == 0
+    assert "Sun-centred celestial equatorial frame" in out and "± is 1σ" in out and "Student-t" in out
+    assert "use_c0=" not in out and "--use-c0" in out  # library keywords in command-line terms
+    assert "Δν/ν" in out
+    code, out, _ = run_main(capsys, year_table, "--json")
+    d = json.loads(out)
+    assert d["version"] and d["provenance"]["settings"]["model"] == "sme"
+    assert "κ̃_e−" in d["convention"] and d["offset_unit"].startswith("fractional")
