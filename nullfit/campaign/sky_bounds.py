@@ -101,4 +101,6 @@ def bounds_table(fit, published=None, *, confidence_level: float | None = None):
                          "sigma": s, "lower": lo, "upper": up,
                          "bound_abs": (abs(v) + z * s) if np.isfinite(v) else z * s,
                          "kind": str(r["kind"]), "note": str(r["note"])})
-    return pd.DataFrame(rows)
+    out = pd.DataFrame(rows)
+    out.attrs["confidence_level"] = cl  # every bound_abs is at this level (figures label it)
+    return out

@@ -134,7 +134,9 @@ def plot_sky_bounds(table, ax=None):
     ax.set_yticks(list(ypos.values()))
     ax.set_yticklabels(list(ypos.keys()))
     ax.set_ylim(-0.85, len(params) - 0.5)
-    ax.set_xlabel("bound on |parameter| at the confidence level of the campaign (dimensionless)")
+    cl = table.attrs.get("confidence_level")
+    at = f"at {100 * cl:g} % CL" if cl is not None else "at the confidence level of the campaign"
+    ax.set_xlabel(f"bound on |parameter| {at} (dimensionless)")
     st.tidy(ax, grid="x")
     st.legend(ax, above=True, ncol=2, fontsize=7)
     return ax

@@ -63,4 +63,5 @@ def test_bounds_side_by_side(campaign):
     ax = plot_sky_bounds(table)
     assert {"sky-bound-campaign", "sky-bound-published"} <= _gids(ax)
     assert ax.get_xscale() == "log"
+    assert f"{100 * fit.confidence_level:g} % CL" in ax.get_xlabel()  # the level of every bound is on the axis
     plt.close("all")
