@@ -127,15 +127,15 @@ class CouplingFit(Described):
         rows = [("source", self.source, ""), ("channels", ", ".join(self.channels), ""),
                 ("turns", self.n_turns, ""),
                 (f"{k}θ before (no correction): c{k}, s{k}", f"{_pm(b.c, b.sigma_c)}, {_pm(b.s, b.sigma_s)}", u),
-                (f"A{k} before", b.amplitude, u)]
+                (f"amplitude A{k} before (biased near 0; peak-to-peak 2·A{k})", b.amplitude, u)]
         if self.ok:
             h = self.corrected
             rows += [(f"{k}θ after, turn level: c{k}, s{k}", f"{_pm(h.c, h.sigma_c)}, {_pm(h.s, h.sigma_s)}", u),
-                     (f"A{k} after, turn level", h.amplitude, u)]
+                     (f"amplitude A{k} after, turn level", h.amplitude, u)]
         if self.reading is not None and "estimate" in self.reading:
             r = self.reading["estimate"]
             rows += [(f"{k}θ after, reading level: c{k}, s{k}", f"{_pm(r.c, r.sigma_c)}, {_pm(r.s, r.sigma_s)}", u),
-                     (f"A{k} after, reading level", r.amplitude, u)]
+                     (f"amplitude A{k} after, reading level", r.amplitude, u)]
         elif self.reading is not None:
             rows.append(("reading level", f"could not run: {self.reading['error']}", ""))
         for c in self.channels:
@@ -151,6 +151,12 @@ class CouplingFit(Described):
                              _pm(self.reading["coef"][c], self.reading["sigma"][c]), f"{u} per channel unit"))
         notes = [f"turn level: per-turn {k}θ of the signal regressed on the channels' ({self.model}: "
                  f"{MODEL_TEXT[self.model]}); reading level: fit_scan(aux=[...]) (one coefficient per channel)"]
+        if self.model == "complex" and self.ok:  # the gain and phase the model text promises
+            for c in self.channels:
+                a, bb = self.couplings[c][:2]
+                notes.append(f"{c}: gain {fmt(math.hypot(a, bb))} {u} per channel unit, phase "
+                             f"{math.degrees(math.atan2(bb, a)):.1f}° (K = [[a, −b], [b, a]], a = gain·cos φ, "
+                             "b = gain·sin φ; a positive φ turns the channel's (c, s) counterclockwise: adds φ to its phase)")
         if self.ok:
             rows += [("dof (turn level)", self.dof, ""), ("variance inflation of the corrected estimate", self.vif, ""),
                      ("separation: corr(estimate, subtracted coupling term)", self.separation, "")]

@@ -219,3 +219,14 @@ def test_bad_options():
         fit_coupling(scan, "tilt", model="tensor")
     with pytest.raises(ValueError, match="at least one"):
         fit_coupling(scan, [])
+
+
+def test_complex_coupling_is_reported_as_gain_and_phase():
+    # simulated truth (tilt_scan): complex gain 0.002·e^{−i·0.6}, i.e. a response 34.4° behind in phase
+    import re
+
+    cf = quiet_coupling(tilt_scan(np.random.default_rng(4), phase=0.6, white=0.0005), "tilt", model="complex")
+    note = next(n for n in cf.summary().notes if n.startswith("tilt: gain"))
+    gain, phase = (float(v) for v in re.search(r"gain ([-\d.e]+) .* phase ([-\d.]+)°", note).groups())
+    assert gain == pytest.approx(0.002, rel=0.05) and phase == pytest.approx(-math.degrees(0.6), abs=2.0)
+    assert "A2 before" in cf.summary().as_text() and "amplitude A2" in cf.summary().as_text()
