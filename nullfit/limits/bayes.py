@@ -31,7 +31,8 @@ Few turns (``dof``)
     with ``dof − 1`` degrees of freedom and scale ``cov · dof/(dof − 1)``; that kernel replaces
     the Gaussian (multiplied by the amplitude prior as above).
 
-Frequentist coverage (measured at 95 %; ``tests/limits/test_limits_coverage.py`` checks these statements)
+Frequentist coverage (measured at 95 %; ``tests/limits/test_limits_coverage.py`` checks the direction of
+each statement with binomial tests — not below nominal, or below it — not the figures themselves)
     Plane prior: never below nominal.  Isotropic covariance: covers in every case for
     ``A ≤ 2σ``, 0.99 at 3σ, 0.97–0.98 at 4–6σ; anisotropic (ρ = 0.5): 0.96 and above.
     Amplitude prior: covers in every case for ``A ≤ 1.5σ``; isotropic covariance: close to
