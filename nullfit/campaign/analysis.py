@@ -15,13 +15,13 @@ from __future__ import annotations
 import dataclasses
 from dataclasses import dataclass, field
 from types import SimpleNamespace
-from pathlib import Path
 from typing import Any, Mapping
 
 import numpy as np
 
 from ..core.conventions import check_confidence_level, make_rng, peak_to_peak
-from ..core.errors import AnalysisError
+from ..core.errors import AnalysisError, raised_by_nullfit
+from ..reading.columns import one_line
 from ..reading.stream import ScanStream
 from ..core.render import Described, Summary
 from .facts import aux_status, plural, reading_facts, reading_notes, reading_rows
@@ -316,20 +316,8 @@ def _limit_settings(lim) -> str:
     return "; ".join(parts)
 
 
-def _raised_by_nullfit(err: BaseException) -> bool:
-    """True when the innermost frame that raised ``err`` is nullfit's own code (a limit route's
-    refusal), not a library deep inside it (a bug, which must not be turned into a note)."""
-    tb, last = err.__traceback__, None
-    while tb is not None:
-        last, tb = tb, tb.tb_next
-    if last is None:
-        return True
-    package = Path(__file__).resolve().parents[1]
-    return Path(last.tb_frame.f_code.co_filename).resolve().is_relative_to(package)
-
-
 def _one_line(err: BaseException) -> str:
-    return " ".join(str(err).split()) or type(err).__name__
+    return one_line(err) or type(err).__name__
 
 
 def analyse(scan, *, harmonics=(1, 2), harmonic: int = 2, drift="per-turn", errors="turns",
@@ -411,7 +399,7 @@ def analyse(scan, *, harmonics=(1, 2), harmonic: int = 2, drift="per-turn", erro
             lim = amplitude_limit(est, method=m, confidence_level=cl,
                                   rng=s_boot if m == "bootstrap" else None, **opts)
         except ValueError as err:  # AnalysisError included; a third-party ValueError is a bug: re-raise
-            if not _raised_by_nullfit(err):
+            if not raised_by_nullfit(err):
                 raise
             failed[m] = _one_line(err)
             continue
@@ -427,7 +415,7 @@ def analyse(scan, *, harmonics=(1, 2), harmonic: int = 2, drift="per-turn", erro
         try:
             sig = detection_significance(est, rng=s_sig)
         except ValueError as err:
-            if not _raised_by_nullfit(err):
+            if not raised_by_nullfit(err):
                 raise
             notes.append(f"no detection p-value: {_one_line(err)}")
 

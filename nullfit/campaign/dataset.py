@@ -57,7 +57,7 @@ import numpy as np
 
 from ..core.errors import AnalysisError, ScanError
 from ..core.provenance import provenance, sha256_of
-from ..reading.columns import check_options
+from ..reading.columns import check_options, one_line
 from ..reading.files import PARQUET_SUFFIXES, read_scan
 from ..reading.manifest import Manifest, load_manifest
 from .analysis import parse_harmonics
@@ -154,12 +154,8 @@ def _reader_takes_aux() -> bool:
     return "aux" in inspect.signature(read_scan).parameters
 
 
-def _one_line(text) -> str:
-    return " ".join(str(text).split())
-
-
 def _located(src: str, text) -> str:
-    msg = _one_line(text)
+    msg = one_line(text)
     return msg if msg.startswith(src) else f"{src}: {msg}"
 
 
@@ -182,7 +178,7 @@ def demodulate_log(task: LogTask, options: CampaignOptions) -> LogResult:
         except MemoryError:
             return LogResult(src, task.run_id, "failed", sha,
                              reason=f"{src}: not enough memory to read and demodulate this log in one piece")
-    meta["warnings"] = [_one_line(w.message) for w in caught]
+    meta["warnings"] = [one_line(w.message) for w in caught]
     return LogResult(src, task.run_id, "done", sha, rows, meta)
 
 
@@ -351,7 +347,7 @@ def _plan(found, manifest, prev: TurnTable | None):
         try:
             man = load_manifest(manifest, path)
         except ScanError as err:
-            failures[src] = (None, f"{_one_line(err)} (manifest of {src})")
+            failures[src] = (None, f"{one_line(err)} (manifest of {src})")
             continue
         run_id = str(man.run_id) if man is not None and man.run_id else (rel_id or path.stem)
         if run_id in seen_ids:

@@ -94,13 +94,13 @@ def load_turns(paths, *, harmonics=(1, 2)):
     """A per-turn table from files: ``.parquet`` per-turn tables (``TurnTable.read``) and scan logs
     (CSV or Parquet with manifests, demodulated serially with ``TurnTable.from_scans``)."""
     from ..reading.files import read_scan
-    from .turn_table import METADATA_KEY, TurnTable
+    from .turn_table import TurnTable, is_turn_table
 
     tables, scans = [], []
     for path in map(Path, paths):
         if not path.is_file():
             raise FileNotFoundError(2, "no such file", str(path))
-        if path.suffix.lower() == ".parquet" and _is_turn_table(path, METADATA_KEY):
+        if path.suffix.lower() == ".parquet" and is_turn_table(path):  # else read as a log (its own errors)
             tables.append(TurnTable.read(path))
         else:
             scans.append(read_scan(path))
@@ -109,17 +109,6 @@ def load_turns(paths, *, harmonics=(1, 2)):
     if not tables:
         raise ScanError("no input files")
     return concat_turn_tables(tables)
-
-
-def _is_turn_table(path: Path, key: bytes) -> bool:
-    import pyarrow as pa
-    import pyarrow.parquet as pq
-
-    try:
-        md = pq.read_schema(path).metadata or {}
-    except (OSError, pa.ArrowException) as err:
-        raise ScanError(f"{path}: not a readable Parquet file ({' '.join(str(err).split())[:160]})") from None
-    return key in md
 
 
 def sidereal_fold(data: SkyData, fit: SkyFit, *, bins: int = 24):

@@ -11,7 +11,6 @@ from __future__ import annotations
 import argparse
 import sys
 import warnings
-from pathlib import Path
 
 from . import compare
 from . import demo
@@ -21,6 +20,7 @@ from . import report
 from . import sidereal
 from . import simulate
 from . import turns
+from ..core.errors import raised_by_nullfit
 from .options import EXIT_BAD_INPUT, UsageError
 from .wording import one_line, show_warning, to_flags
 
@@ -79,19 +79,6 @@ def main(argv=None) -> int:
         return EXIT_BAD_INPUT
     except BrokenPipeError:  # pragma: no cover - e.g. `nullfit fit ... | head`
         return 0
-
-
-def raised_by_nullfit(err: BaseException) -> bool:
-    """True when the innermost frame that raised ``err`` is nullfit's own code."""
-    tb = err.__traceback__
-    last = None
-    while tb is not None:
-        last = tb
-        tb = tb.tb_next
-    if last is None:
-        return True
-    package = Path(__file__).resolve().parents[1]
-    return Path(last.tb_frame.f_code.co_filename).resolve().is_relative_to(package)
 
 
 __all__ = ["main", "build_parser", "COMMANDS", "UsageError", "EXIT_BAD_INPUT", "to_flags", "one_line"]

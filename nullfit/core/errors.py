@@ -52,3 +52,17 @@ def where(source: str | None, row: int | None = None, column: str | None = None)
 
 
 __all__ = ["ScanError", "AnalysisError", "ScanWarning", "FitWarning", "where"]
+
+
+def raised_by_nullfit(err: BaseException) -> bool:
+    """True when the innermost frame that raised ``err`` is nullfit's own code (a refusal worded for
+    the user), not a library deep inside it (a bug, which must not be turned into a one-line note)."""
+    tb, last = err.__traceback__, None
+    while tb is not None:
+        last, tb = tb, tb.tb_next
+    if last is None:
+        return True
+    from pathlib import Path
+
+    package = Path(__file__).resolve().parents[1]
+    return Path(last.tb_frame.f_code.co_filename).resolve().is_relative_to(package)
