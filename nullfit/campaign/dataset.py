@@ -47,7 +47,6 @@ Without Dask the logs run serially and the table's ``campaign`` notes say so.
 from __future__ import annotations
 
 import dataclasses
-import inspect
 import warnings
 from dataclasses import dataclass
 from pathlib import Path
@@ -150,10 +149,6 @@ def find_logs(paths, notes: list | None = None) -> list[tuple[Path, str | None, 
     return out
 
 
-def _reader_takes_aux() -> bool:
-    return "aux" in inspect.signature(read_scan).parameters
-
-
 def _located(src: str, text) -> str:
     msg = one_line(text)
     return msg if msg.startswith(src) else f"{src}: {msg}"
@@ -188,18 +183,9 @@ def _demodulate(task: LogTask, options: CampaignOptions, sha: str):
 
     src = task.path
     kw = options.reading()
-    by_keyword = bool(options.aux) and _reader_takes_aux()
-    if by_keyword:
-        kw["aux"] = list(options.aux)
+    if options.aux:
+        kw["aux"] = list(options.aux)  # read_scan refuses a channel the log does not have, in one line
     scan = read_scan(src, manifest=task.manifest if task.manifest is not None else False, **kw)
-    for name in options.aux:
-        if name not in scan.aux:
-            if by_keyword:
-                raise ScanError(f"{src}, column {name!r}: not read as an auxiliary channel")
-            declared = f"{task.manifest.path}" if task.manifest is not None else f"a manifest {Path(src).stem}.toml"
-            raise ScanError(f"{src}, column {name!r}: not an auxiliary channel of this log; this nullfit reads "
-                            f"auxiliary channels only from the manifest's [columns] aux list (declare it in "
-                            f"{declared})")
     opts = {"harmonics": options.harmonics, "drift": options.drift, "complete_only": options.complete_only}
     pt = demodulate(scan, **opts)
     rows = run_rows(scan, pt, run_id=task.run_id)

@@ -88,7 +88,6 @@ def split_list(text: str | None) -> list[str]:
 
 def read_log(args, path=None):
     """Read ``args.scan`` (or ``path``) with the column, unit, start-time and aux options."""
-    import inspect
     from dataclasses import replace
     from pathlib import Path
 
@@ -99,33 +98,18 @@ def read_log(args, path=None):
     kw = dict(time=args.time, angle=args.angle, signal=args.signal, angle_unit=args.angle_unit,
               signal_unit=getattr(args, "signal_unit", None),
               nonfinite="raise" if getattr(args, "strict", False) else "drop")
-    params = inspect.signature(read_scan).parameters
     start = getattr(args, "start_utc", None)
     aux = split_list(getattr(args, "aux", None))
     man = getattr(args, "manifest", None)
-    override = {}
-    if start is not None:
-        if "start_utc" in params:
-            kw["start_utc"] = start
-        else:
-            override["start_utc"] = normalise_utc(start)
     if aux:
-        if "aux" in params:
-            kw["aux"] = aux
-        else:
-            override["aux"] = aux
-    if override and Path(path).is_file():
-        m = load_manifest(man, Path(path)) or Manifest()
-        changes = {}
-        if "start_utc" in override:
-            changes["start_utc"] = override["start_utc"]
-        if "aux" in override:
-            changes["aux_columns"] = tuple(dict.fromkeys(tuple(m.aux_columns) + tuple(override["aux"])))
-        man = replace(m, **changes)
+        kw["aux"] = aux
+    if start is not None:  # the start time goes in as the manifest's [time] start_utc
+        start = normalise_utc(start)
+        if Path(path).is_file():
+            man = replace(load_manifest(man, Path(path)) or Manifest(), start_utc=start)
     if streaming(args, path):
         from ..reading.stream import open_stream
 
-        kw.pop("start_utc", None)
         return open_stream(path, manifest=man, **kw)
     return read_scan(path, manifest=man, **kw)
 

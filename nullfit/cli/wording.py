@@ -34,8 +34,6 @@ PHRASES = (
     ("pass turns=(N, 2) array of (c, s)", "use --errors turns"),
     ("name them with aux=[...] to regress the signal on them",
      "name them with --aux COL[,COL] to regress the signal on them"),
-    ("although None [columns] aux lists it", "although --aux lists it"),
-    ("although None [columns] aux lists", "although --aux lists"),
 )
 
 _KEYWORD = re.compile(r"\b([a-z_][a-z0-9_]*)=('[^']*'|\"[^\"]*\"|[^\s,;)]+)")

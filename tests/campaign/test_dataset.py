@@ -252,15 +252,14 @@ def test_bad_logs_are_listed_not_fatal(tmp_path, write_logs):
 
 
 def test_aux_channel_declared_only_in_the_call(tmp_path, write_logs):
-    """A column named by ``aux`` but not declared in the manifest: read through ``read_scan(aux=...)``
-    where the reader has that keyword, otherwise refused with a reason that says where to declare it."""
+    """A column named by ``aux`` but not declared in the manifest is read through
+    ``read_scan(aux=...)``; one the log does not have fails that log with a line naming it."""
     log = write_logs(tmp_path, 1)[0]
     log.with_suffix(".toml").write_text('[columns]\ntime = "unix_s"\n')
     tt = demodulate_campaign([log], aux=["tilt"], workers=0)
-    if dataset._reader_takes_aux():
-        assert "R0" in tt.runs and "aux_c2_tilt" in tt.frame
-    else:
-        assert "[columns] aux" in tt.failed[str(log)] and "R0.toml" in tt.failed[str(log)]
+    assert "R0" in tt.runs and "aux_c2_tilt" in tt.frame
+    tt = demodulate_campaign([log], aux=["humidity"], workers=0)
+    assert "'humidity'" in tt.failed[str(log)] and "\n" not in tt.failed[str(log)]
 
 
 def test_option_errors(tmp_path, write_logs):
