@@ -278,13 +278,10 @@ def demodulate_campaign(paths, *, harmonics=(1, 2), drift="per-turn", complete_o
 
 def _options(harmonics, drift, complete_only, aux, time, angle, signal, angle_unit, signal_unit,
              nonfinite) -> CampaignOptions:
-    from ..fitting.design import parse_drift
+    from ..fitting.design import per_turn_drift
 
     ks = parse_harmonics(harmonics)
-    spec = parse_drift(drift)
-    if spec.kind != "per-turn":
-        raise ValueError(f"a per-turn table fits drift turn by turn: drift must be 'per-turn' or 'per-turn:d', "
-                         f"not {drift!r}")
+    spec = per_turn_drift(drift, "a per-turn table")
     check_options(angle_unit, signal_unit, nonfinite)
     if isinstance(aux, str):
         aux = [a.strip() for a in aux.split(",")]

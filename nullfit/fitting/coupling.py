@@ -48,7 +48,7 @@ import numpy as np
 
 from ..core.errors import AnalysisError, where
 from .coupling_result import CouplingFit
-from .design import check_harmonics, harmonic_names, parse_drift
+from .design import check_harmonics, harmonic_names, per_turn_drift
 from .engine import TurnEngine
 from .estimate import HarmonicEstimate
 from .turn_errors import MIN_TURNS, turn_scatter
@@ -132,10 +132,7 @@ def fit_coupling(scan, aux, *, harmonic: int = 2, harmonics=(1, 2), model: str =
     if model not in MODELS:
         raise ValueError(f"model must be one of {', '.join(MODELS)}, not {model!r}")
     ks = check_harmonics(tuple(set(check_harmonics(harmonics)) | {int(harmonic)}))
-    spec = parse_drift(drift)
-    if spec.kind != "per-turn":
-        raise ValueError(f"turn-level couplings demodulate turn by turn: drift must be 'per-turn' or 'per-turn:d', "
-                         f"not {drift!r}")
+    spec = per_turn_drift(drift, "the turn-level coupling")
     j = ks.index(int(harmonic))
     sl = slice(2 * j, 2 * j + 2)
     eng, pt = _demodulate(scan, ks, spec.degree, complete_only)

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .design import check_harmonics, check_separable, parse_drift
+from .design import check_harmonics, check_separable, per_turn_drift
 from .engine import TurnEngine
 
 def demodulate(scan, *, harmonics=(1, 2), drift="per-turn", complete_only: bool = True, aux=None,
@@ -39,10 +39,7 @@ def demodulate(scan, *, harmonics=(1, 2), drift="per-turn", complete_only: bool 
         coefficients.  ``df.attrs`` records harmonics, drift, signal unit and exclusions.
     """
     ks = check_harmonics(harmonics)
-    spec = parse_drift(drift)
-    if spec.kind != "per-turn":
-        raise ValueError(f"demodulate fits drift turn by turn: drift must be 'per-turn' or 'per-turn:d', "
-                         f"not {drift!r}")
+    spec = per_turn_drift(drift)
     check_separable(scan.angle, ks, marks=scan.marks, source=scan.source)
     aux = tuple(aux or ())
     if aux and aux_coef is None:

@@ -289,6 +289,15 @@ class DriftSpec:
 _DRIFT_RE = re.compile(r"^\s*(per-turn|perturn|turn|poly|polynomial|spline|none|offset)\s*(?::\s*([0-9.eE+-]+))?\s*$")
 
 
+def per_turn_drift(drift, what: str = "demodulate"):
+    """:func:`parse_drift` of a drift that must be fitted turn by turn (``"per-turn"`` or
+    ``"per-turn:d"``); ``what`` says who needs it, for the message."""
+    spec = parse_drift(drift)
+    if spec.kind != "per-turn":
+        raise ValueError(f"{what} fits drift turn by turn: drift must be 'per-turn' or 'per-turn:d', not {drift!r}")
+    return spec
+
+
 def parse_drift(drift="per-turn", *, degree: int = 3, knot_turns: float = 2.0) -> DriftSpec:
     """Parse ``"per-turn"``, ``"per-turn:d"``, ``"poly"``, ``"poly:3"``, ``"spline"``, ``"spline:2"``
     or ``"none"`` (``degree`` and ``knot_turns`` supply the defaults for ``"poly"``/``"spline"``)."""

@@ -37,7 +37,7 @@ import numpy as np
 
 from ..core.errors import AnalysisError, where
 from ..core.progress import show_progress
-from .design import check_harmonics, check_separable_sums, harmonic_names, parse_drift
+from .design import check_harmonics, check_separable_sums, harmonic_names, parse_drift, per_turn_drift
 from .engine import turn_frame
 from .fit import check_errors_drift, finish_fit, parse_errors
 from .kernel import TurnKernel
@@ -228,20 +228,12 @@ def _pass(stream, ks, spec, complete_only, min_samples, progress) -> _Used:
     return _Used(turns, complete[turns.turn], stream.source, complete_only, min_samples)
 
 
-def _per_turn_spec(drift):
-    spec = parse_drift(drift)
-    if spec.kind != "per-turn":
-        raise ValueError(f"demodulate fits drift turn by turn: drift must be 'per-turn' or 'per-turn:d', "
-                         f"not {drift!r}")
-    return spec
-
-
 # ----------------------------------------------------------------------------- public
 def demodulate_stream(stream, *, harmonics=(1, 2), drift="per-turn", complete_only: bool = True, progress=None):
     """The per-turn table of a streamed log: :func:`nullfit.demodulate` of a `ScanStream`
     (same columns, attributes and exclusions; see the module docstring)."""
     ks = check_harmonics(harmonics)
-    spec = _per_turn_spec(drift)
+    spec = per_turn_drift(drift)
     used = _pass(stream, ks, spec, complete_only, 1, progress)
     return _frame(used, stream, ks, spec.degree)
 
