@@ -91,20 +91,10 @@ class TurnEngine(Exclusions):
                 have = ", ".join(sorted(scan.aux)) or "none"
                 raise ValueError(f"auxiliary column {name!r} is not in the scan (available: {have})")
         seg = self._every = turn_segments(scan)  # every turn of the scan; self.seg: those used
-        idx = np.arange(seg.n)
-        self.excluded: dict[str, tuple[int, int]] = {}
-        if complete_only and (~seg.complete).any():
-            bad = ~seg.complete
-            self.excluded["partial turns"] = (int(bad.sum()), int(seg.length[bad].sum()))
-            seg, idx = seg.take(~bad), idx[~bad]
-        few = seg.length < max(min_samples, 2)
-        if few.any():
-            self.excluded[f"turns with fewer than {max(min_samples, 2)} readings"] = (
-                int(few.sum()), int(seg.length[few].sum()))
-            seg, idx = seg.take(~few), idx[~few]
-        if seg.n == 0:
-            raise AnalysisError(f"{where(scan.source)}: no usable turns left to fit "
-                            f"(excluded: {self.excluded_text() or 'none'})")
+        keep = self.screen(seg.length, seg.complete, complete_only, min_samples, scan.source)
+        idx = np.flatnonzero(keep)
+        if idx.size < seg.n:
+            seg = seg.take(keep)
         self.seg, self._idx = seg, idx
         self._means = None  # (segments, turn means, mean) of the used turns, on demand
         # about 8+ chunks for short scans (small buffers), at most CHUNK_ROWS rows for long ones;

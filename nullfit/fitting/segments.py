@@ -81,6 +81,26 @@ class Exclusions:
 
     excluded: dict
 
+    def screen(self, length: np.ndarray, complete: np.ndarray, complete_only: bool, min_samples: int,
+               source: str) -> np.ndarray:
+        """The turns a fit keeps (a mask): partial turns out when ``complete_only``, then turns with
+        fewer than ``max(min_samples, 2)`` readings; each reason counted in ``excluded`` (set here).
+        Raises `AnalysisError` when none is left."""
+        self.excluded = {}
+        keep = np.ones(length.size, bool)
+        if complete_only and (~complete).any():
+            self.exclude("partial turns", int((~complete).sum()), int(length[~complete].sum()))
+            keep = complete.copy()
+        m = max(min_samples, 2)
+        few = keep & (length < m)
+        if few.any():
+            self.exclude(f"turns with fewer than {m} readings", int(few.sum()), int(length[few].sum()))
+            keep &= ~few
+        if not keep.any():
+            raise AnalysisError(f"{where(source)}: no usable turns left to fit "
+                                f"(excluded: {self.excluded_text() or 'none'})")
+        return keep
+
     def exclude(self, why: str, n_turns: int, n_rows: int) -> None:
         n_old, r_old = self.excluded.get(why, (0, 0))
         self.excluded[why] = (n_old + int(n_turns), r_old + int(n_rows))

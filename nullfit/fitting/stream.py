@@ -170,19 +170,7 @@ class _Used(Exclusions):
 
     def __init__(self, turns: StreamTurns, complete: np.ndarray, source, complete_only: bool, min_samples: int):
         self.source = source
-        self.excluded: dict[str, tuple[int, int]] = {}
-        keep = np.ones(turns.turn.size, bool)
-        if complete_only and (~complete).any():
-            self.excluded["partial turns"] = (int((~complete).sum()), int(turns.n[~complete].sum()))
-            keep = complete.copy()
-        m = max(min_samples, 2)
-        few = keep & (turns.n < m)
-        if few.any():
-            self.excluded[f"turns with fewer than {m} readings"] = (int(few.sum()), int(turns.n[few].sum()))
-            keep &= ~few
-        if not keep.any():
-            raise AnalysisError(f"{where(source)}: no usable turns left to fit "
-                                f"(excluded: {self.excluded_text() or 'none'})")
+        keep = self.screen(turns.n, complete, complete_only, min_samples, source)
         self.turns = turns.take(keep)
         self.complete = complete[keep]
 
