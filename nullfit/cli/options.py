@@ -122,13 +122,13 @@ def streaming(args, path) -> bool:
     choice = getattr(args, "stream", "no")
     if choice == "no" or not Path(path).is_file():
         return False
-    from ..fitting.stream import STREAM_MIN_BYTES, is_parquet
+    from ..fitting.stream import is_parquet, streams_by_default
 
     if choice == "yes":
         if not is_parquet(path):
             raise UsageError("--stream yes reads Parquet logs only (convert the CSV log to Parquet)")
         return True
-    return is_parquet(path) and Path(path).stat().st_size >= STREAM_MIN_BYTES
+    return streams_by_default(path)
 
 
 def normalise_utc(text: str) -> str:

@@ -273,6 +273,11 @@ def is_parquet(path) -> bool:
         return False
 
 
+def streams_by_default(path) -> bool:
+    """``stream="auto"``: a Parquet log of at least :data:`STREAM_MIN_BYTES` is read in chunks."""
+    return is_parquet(path) and Path(path).stat().st_size >= STREAM_MIN_BYTES
+
+
 def fit_path(path, *, stream="auto", progress=None, chunk_rows: int | None = None, read_options=None,
              **fit_options) -> ScanFit:
     """Fit a log file, streaming it when it is large.
@@ -297,7 +302,7 @@ def fit_path(path, *, stream="auto", progress=None, chunk_rows: int | None = Non
     read_options = dict(read_options or {})
     if stream not in ("auto", True, False):
         raise ValueError(f"stream must be 'auto', True or False, not {stream!r}")
-    use = stream is True or (stream == "auto" and is_parquet(path) and Path(path).stat().st_size >= STREAM_MIN_BYTES)
+    use = stream is True or (stream == "auto" and streams_by_default(path))
     if use:
         from ..reading.stream import open_stream
 
