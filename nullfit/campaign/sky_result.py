@@ -282,7 +282,7 @@ def span_warnings(fit: SkyFit) -> None:
                       FitWarning, stacklevel=3)
 
 
-def offset_summary(values, weights=None) -> dict | None:
+def offset_summary(values) -> dict | None:
     """Mean of per-segment offsets and its σ from their scatter (None with fewer than 2)."""
     v = np.asarray(values, dtype=float)
     v = v[np.isfinite(v)]

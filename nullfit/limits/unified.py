@@ -66,7 +66,7 @@ from scipy import special
 from ..core.conventions import check_confidence_level
 
 from . import belt
-from .covariance import CovarianceShape, covariance_shape, hotelling_scale, with_min_rho
+from .covariance import ISOTROPIC_RHO, CovarianceShape, covariance_shape, hotelling_scale, with_min_rho
 from .result import Limit, estimate_fields
 
 #: Shapes for which belts are built and cached (``ρ = 1`` is the Rice family).
@@ -108,7 +108,7 @@ def shape_interval(x, rho: float, confidence_level: float):
     """
     x = np.atleast_1d(np.asarray(x, dtype=float))
     cl = float(confidence_level)
-    if rho >= 0.999:
+    if rho >= ISOTROPIC_RHO:
         return belt.invert(("rice",), cl, x)
     rho = float(rho)
     if rho < MIN_RHO - 1e-12:
@@ -123,7 +123,7 @@ def shape_interval(x, rho: float, confidence_level: float):
 def rho_weights(rho: float) -> list[tuple[tuple, float]]:
     """The cached belts that serve shape ``ρ`` and their linear-interpolation weights:
     ``[(key, 1.0)]`` on the grid (or isotropic), else the two neighbouring grid shapes."""
-    if rho >= 0.999:
+    if rho >= ISOTROPIC_RHO:
         return [(("rice",), 1.0)]
     rho = max(float(rho), MIN_RHO)
     j = int(np.clip(np.searchsorted(RHO_GRID, rho, side="right") - 1, 0, RHO_GRID.size - 2))
@@ -176,7 +176,7 @@ def intervals_by_shape(x, rho, confidence_level: float):
     if np.any(rho < MIN_RHO - 1e-12):
         raise ValueError(f"intervals need rho >= {MIN_RHO}; regularise the covariance first")
     lo, up = np.zeros(x.shape), np.zeros(x.shape)
-    iso = rho >= 0.999
+    iso = rho >= ISOTROPIC_RHO
     if iso.any():
         lo[iso], up[iso] = belt.invert(("rice",), cl, x[iso])
     normal = ~iso & (x > ANISO_NORMAL_REGIME)
@@ -301,7 +301,6 @@ def intervals_many_shapes(amplitudes, covs, confidence_level: float):
     lam_min = np.maximum(w[:, 0], MIN_RHO**2 * lam_max)
     sig = np.sqrt(0.5 * (lam_min + lam_max))
     rho = np.sqrt(lam_min / lam_max)
-    rho = np.where(rho >= 0.999, 1.0, rho)
     lo, up = intervals_by_shape(np.asarray(amplitudes, dtype=float) / sig, rho, confidence_level)
     return lo * sig, up * sig
 
