@@ -10,8 +10,9 @@ For every size it prints
 
 0. the floor: ``numpy.cos`` and ``numpy.sin`` of every reading's angle (any harmonic fit must
    compute them), and the default fit as a multiple of it — for the log with 72 readings in
-   every turn, and for one whose turns alternate between 72 and 73 readings (as a continuously
-   sampled log whose turn period is not a whole number of sampling intervals);
+   every turn, and for one with 72.4 readings per turn on average (turns of 72 and 73
+   readings, as a continuously sampled log whose turn period is not a whole number of
+   sampling intervals);
 1. ``drift="poly:3"``, 1θ + 2θ, HAC errors: ``nullfit.fit_scan`` against statsmodels
    ``OLS(y, X).fit(cov_type="HAC", cov_kwds={"maxlags": L, "use_correction": True})`` on the
    same dense design (built beforehand; its construction time is shown separately and *not*
@@ -203,7 +204,8 @@ def main(argv=None):
     print(f"numpy {numpy.__version__}, statsmodels {statsmodels.__version__}")
     rows = [bench_size(int(float(s)), args.per_turn, args.repeat, not args.no_statsmodels)
             for s in args.sizes.split(",")]
-    print("\nsummary (medians): n, default fit / floor (72 per turn; 72-73 per turn), loop / default fit, "
+    k = args.per_turn
+    print(f"\nsummary (medians): n, default fit / floor ({k} per turn; {k + 0.4:g} per turn), loop / default fit, "
           "statsmodels HAC / nullfit HAC")
     for r in rows:
         sm = f"{r['sm_ratio']:.1f}x" if r.get("sm_ratio") else "-"

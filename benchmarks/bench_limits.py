@@ -136,8 +136,7 @@ def bench_scale(rows, n_readings, per_turn=72):
         b_pw, _ = politis_white_block_length(est.turns)
         t_pw, lim_pw = _clock(lambda: amplitude_limit(est, method="bootstrap", rng=1, progress=False,
                                                       block_length=b_pw))
-        per_method = {m: _clock(lambda m=m: amplitude_limit(est, method=m, rng=1, progress=False)
-                                if m == "bootstrap" else amplitude_limit(est, method=m))[0]
+        per_method = {m: _clock(lambda m=m: amplitude_limit(est, method=m))[0]
                       for m in ("feldman-cousins", "neyman", "bayes")}
         scan = fit = None  # free the 10^7-row scan before the temporary file goes
     tag = f"{n:.3g} readings, {n_turns} turns"
