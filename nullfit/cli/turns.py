@@ -12,6 +12,7 @@ import sys
 from pathlib import Path
 
 from .options import EXIT_BAD_INPUT, UsageError, scan_options
+from .wording import one_line, to_flags
 
 
 def add_parser(sub) -> None:
@@ -83,13 +84,13 @@ def run(args) -> int:
             signal_unit=args.signal_unit, manifest=args.manifest, nonfinite="raise" if args.strict else "drop", workers=args.workers,
             scheduler=args.scheduler, resume=resume)
     except (ConnectionError, ImportError, ResumeMismatch) as err:
-        raise UsageError(_flags(str(err))) from None
+        raise UsageError(to_flags(one_line(err))) from None
     except KeyboardInterrupt:
         print(f"nullfit: interrupted; {out} was not written", file=sys.stderr)
         return 130
     camp = table.meta["campaign"]
     for note in camp["notes"]:
-        print(f"nullfit: note: {_flags(note)}", file=sys.stderr)
+        print(f"nullfit: note: {to_flags(note)}", file=sys.stderr)
     for src in camp["failed"]:
         print(f"nullfit: failed: {table.failed[src]}", file=sys.stderr)
     if not table.runs:
@@ -114,11 +115,3 @@ def _how(ex: dict) -> str:
         return "serial"
     where = "local cluster" if ex["kind"] == "local-cluster" else f"scheduler {ex['address']}"
     return f"{ex['workers']} worker{'s' if ex['workers'] != 1 else ''}, {where}"
-
-
-def _flags(text: str) -> str:
-    """Library words → the command line's flags."""
-    for word, flag in (("the table given as resume=", "the table"), ("resume=", "--resume"),
-                       ("a scheduler address", "--scheduler")):
-        text = text.replace(word, flag)
-    return " ".join(text.split())

@@ -34,6 +34,8 @@ PHRASES = (
     ("pass turns=(N, 2) array of (c, s)", "use --errors turns"),
     ("name them with aux=[...] to regress the signal on them",
      "name them with --aux COL[,COL] to regress the signal on them"),
+    ("the table given as resume=", "the table"), ("resume= needs", "--resume needs"),
+    ("a scheduler address", "--scheduler"),
 )
 
 _KEYWORD = re.compile(r"\b([a-z_][a-z0-9_]*)=('[^']*'|\"[^\"]*\"|[^\s,;)]+)")
