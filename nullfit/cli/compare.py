@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from .options import UsageError, column_options, expected_options, fit_options, limit_options, read_log
+from .options import UsageError, column_options, expected_options, fit_options, hypothesis, limit_options, read_log
 
 DEFAULT_SPEED_M_S = 30_000.0
 
@@ -31,7 +31,7 @@ def run(args) -> int:
 
     if not args.runs and not args.bounds:
         raise UsageError("give at least one RUN log or --bounds TABLE.csv")
-    apparatus, site, velocity, speed = hypothesis_for_runs(args)
+    apparatus, site, velocity, speed = hypothesis(args)
     methods = [m for m in (args.limits or "feldman-cousins").split(",") if m.strip()]
     if len(methods) != 1:
         raise UsageError("compare puts one limit method in the run table: give --limits METHOD (e.g. neyman)")
@@ -60,13 +60,3 @@ def run(args) -> int:
             if isinstance(note, str) and note:
                 print(f"note: {run_id}: {to_flags(note)}")
     return 0
-
-
-def hypothesis_for_runs(args):
-    from .options import hypothesis
-
-    # scan_options' start/manifest/strict are per-log and not offered here; the reader needs them as None
-    for name in ("manifest", "start_utc", "aux"):
-        setattr(args, name, None)
-    args.strict = False
-    return hypothesis(args)
