@@ -173,6 +173,15 @@ def log_inputs(args, path=None) -> list:
 
 
 # --------------------------------------------------------------------------- hypothesis
+def parse_site(text: str) -> tuple[float, float]:
+    """``--site LAT,LON`` in degrees."""
+    try:
+        lat, lon = (float(v) for v in text.split(","))
+    except ValueError:
+        raise UsageError(f"--site must be LAT,LON in degrees (e.g. 58.39,13.85), not {text!r}") from None
+    return lat, lon
+
+
 def hypothesis(args, scan=None):
     """(apparatus, site, velocity, speed) from the command line; None where not given.  The site
     options override single keys of the manifest's ``[site]`` when ``scan`` has one."""
@@ -188,10 +197,7 @@ def hypothesis(args, scan=None):
     if scan is not None and getattr(scan.meta, "site", None) and any(v is not None for v in given):
         site_keys = dict(scan.meta.site)
     if args.site is not None:
-        try:
-            lat, lon = (float(v) for v in args.site.split(","))
-        except ValueError:
-            raise UsageError(f"--site must be LAT,LON in degrees (e.g. 58.39,13.85), not {args.site!r}") from None
+        lat, lon = parse_site(args.site)
         site_keys.update(latitude_deg=lat, longitude_deg=lon)
     if args.mark_azimuth is not None:
         site_keys["mark_azimuth_deg"] = args.mark_azimuth

@@ -7,7 +7,7 @@ log (same stem, ``.toml``) records every ingredient and the seed in ``[notes] te
 
 from __future__ import annotations
 
-from .options import UsageError
+from .options import UsageError, parse_site
 
 
 def add_parser(sub) -> None:
@@ -206,19 +206,14 @@ def _sky(args):
     from ..hypothesis.site import Site
     from ..simulation.sky import manifest_tables
 
-    try:
-        lat, lon = (float(v) for v in args.site.split(","))
-    except ValueError:
-        raise UsageError(f"--site must be LAT,LON in degrees (e.g. 58.39,13.85), not {args.site!r}") from None
+    lat, lon = parse_site(args.site)
     params = {}
     for item in filter(None, (t.strip() for t in (args.sky or "").split(","))):
-        name, eq, value = item.partition("=")
+        name, _, value = item.partition("=")
         try:
-            params[name.strip()] = float(value)
+            params[name.strip()] = float(value)  # a missing "=" leaves value empty: refused here too
         except ValueError:
             raise UsageError(f"--sky takes NAME=VALUE pairs (e.g. e_XY=1e-16), not {item!r}") from None
-        if not eq:
-            raise UsageError(f"--sky takes NAME=VALUE pairs (e.g. e_XY=1e-16), not {item!r}")
     site = Site(lat, lon, mark_azimuth_deg=args.mark_azimuth, table_sense=args.table_sense, name="simulated site")
     app = Apparatus(args.arm_length, args.wavelength, signal=args.signal_unit, readout_sign=args.readout_sign,
                     name="simulated apparatus")
