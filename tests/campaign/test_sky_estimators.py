@@ -141,7 +141,9 @@ def test_both_routes_agree_within_a_fraction_of_sigma(sky_turns):
         assert g.names == d.names
         diff = np.abs(g.estimate - d.estimate) / g.sigma
         assert diff.max() < 0.45, diff
-        assert d.sigma == pytest.approx(g.sigma, rel=0.35)
+        # each σ comes from the scatter of the same 36 segments (relative scatter ≈ 1/√70 = 0.12 if they
+        # were independent); the two routes' σ agree within 0.95–1.05 for these seeds
+        assert d.sigma == pytest.approx(g.sigma, rel=0.15)
 
 
 def test_e_o_correlation_falls_with_the_span_and_warns_when_short(sky_turns):
