@@ -28,7 +28,8 @@ of ``bench_io.py`` (three float64 columns, 72 readings per turn), in one process
    turn index, coverage bins of 2θ); the reader needs at least two passes, because the turn
    numbering starts from whole-log medians (typical step, readings per stop, first sense).
 
-Best of ``--repeat`` runs.  Everything written (the logs, numba's cache) goes to a temporary
+The steps of one format run in turn, ``--repeat`` times (so that a busy spell of a shared machine
+slows them alike), and the best of each is kept.  Everything written (the logs, numba's cache) goes to a temporary
 directory that is deleted at the end.
 """
 
@@ -42,12 +43,12 @@ import subprocess
 import sys
 import tempfile
 import textwrap
-import time
 import warnings
 
 import numpy as np
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from bench_fit import interleaved  # noqa: E402  (runs in turn, median and minimum)
 from bench_io import warm_memory, write_logs  # noqa: E402  (the same invented log)
 
 KERNEL = '''
@@ -119,19 +120,9 @@ print(json.dumps({"import": t2 - t1, "first_call": t4 - t3, "kernel": best}))
 '''
 
 
-def best_of(f, repeat: int) -> float:
-    b = float("inf")
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        out = f()
-        b = min(b, time.perf_counter() - t0)
-        del out
-    return b
-
-
-def one_pass(x: np.ndarray, repeat: int) -> float:
-    """Time of one numpy pass over one column: read ``x``, write a new array (``numpy.diff``)."""
-    return best_of(lambda: np.diff(x), repeat)
+def numpy_pass(x: np.ndarray, repeat: int) -> float:
+    """Best time of one numpy pass over one column: read ``x``, write a new array (``numpy.diff``)."""
+    return interleaved({"diff": lambda: np.diff(x)}, repeat)["diff"][1]
 
 
 def numba_costs(n: int, directory: str) -> list[dict] | str:
@@ -189,7 +180,7 @@ def main(argv=None) -> None:
                 warnings.simplefilter("ignore")
                 return nullfit.read_scan(path)
 
-        one = one_pass(pq.read_table(paths["parquet"]).column(0).to_numpy(), args.repeat)
+        one = numpy_pass(pq.read_table(paths["parquet"]).column(0).to_numpy(), args.repeat)
         rows = []
         for fmt, alt_name, alt, base_name, base in (
                 ("parquet", "pyarrow read_table + to_numpy",
@@ -197,9 +188,9 @@ def main(argv=None) -> None:
                  "the columns one at a time", parquet_columns),
                 ("csv", 'pandas.read_csv(engine="pyarrow")', lambda: pd.read_csv(paths["csv"], engine="pyarrow"),
                  "pyarrow CSV, time as decimals", csv_decimal)):
-            t_alt = best_of(alt, args.repeat)
-            t_base = best_of(base, args.repeat)
-            t_scan = best_of(lambda: read_scan(paths[fmt]), args.repeat)
+            best = {k: v[1] for k, v in interleaved(
+                {"alt": alt, "base": base, "scan": lambda fmt=fmt: read_scan(paths[fmt])}, args.repeat).items()}
+            t_alt, t_base, t_scan = best["alt"], best["base"], best["scan"]
             rows.append((fmt, alt_name, t_alt, base_name, t_base, t_scan))
         print(f"{n:.0e} readings (three float64 columns = {24 * n / 1e6:.0f} MB); one numpy pass over one column "
               f"(numpy.diff) = {one * 1e3:.1f} ms ({one / n * 1e9:.1f} ns per reading)")
